@@ -1,0 +1,3 @@
+"""kinetrace: daily performance check of continuous stirred-tank reactors."""
+
+__version__ = "0.1.0"
