@@ -1,0 +1,174 @@
+"""Units: one pint registry for kinetrace, and conversion to the internal SI units.
+
+Internal units are SI throughout: concentration [mol/m^3], volumetric flow
+[m^3/s], molar flow [mol/s], temperature [K], volume [m^3], time [s],
+activation energy [J/mol]. Conversion happens once, at the edges (config
+load, ingest), vectorised over arrays.
+
+Quantities written in the plant configuration are strings of a number and a
+unit, such as ``"80 degC"`` or ``"2.5 mol/L"``; :func:`parse_quantity` reads
+them. Offset temperature units (degC, degF) are handled explicitly, so
+``"80 degC"`` means a temperature of 353.15 K.
+
+Units pint does not define and the trade uses are added here, each from
+NIST SP 811 (2008), Appendix B: ``lbmol`` (453.59237 mol, from the exact
+pound), ``gpm`` (US gallon per minute) and ``bbl`` (42 US gallons).
+"""
+
+from __future__ import annotations
+
+import re
+from functools import lru_cache
+
+import numpy as np
+import pint
+
+from .errors import KinetraceError
+
+#: The registry every kinetrace module uses.
+ureg = pint.UnitRegistry(cache_folder=None)
+ureg.define("lbmol = 453.59237 * mol = lb_mol")
+ureg.define("gpm = US_liquid_gallon / minute")
+ureg.define("bbl = 42 * US_liquid_gallon = oil_bbl")
+ureg.define("wtpct = 0.01 = wt_percent")
+
+#: Internal SI unit of each physical kind of quantity.
+SI_UNITS: dict[str, str] = {
+    "volumetric_flow": "m^3/s",
+    "mass_flow": "kg/s",
+    "molar_flow": "mol/s",
+    "concentration": "mol/m^3",
+    "mass_fraction": "dimensionless",
+    "temperature": "K",
+    "volume": "m^3",
+    "level": "dimensionless",
+    "time": "s",
+    "molar_energy": "J/mol",
+    "molar_mass": "kg/mol",
+    "density": "kg/m^3",
+    "inverse_concentration": "m^3/mol",
+    "mass_rate": "kg/s",
+    "dimensionless": "dimensionless",
+    "pressure": "Pa",
+}
+
+_NUMBER = re.compile(r"^\s*([-+]?(?:\d+\.?\d*|\.\d+)(?:[eE][-+]?\d+)?)\s*(.*?)\s*$")
+
+
+class UnitError(KinetraceError):
+    """A unit is unknown, or is of the wrong physical dimension."""
+
+
+@lru_cache(maxsize=512)
+def _units(text: str) -> pint.Unit:
+    text = text.strip()
+    if text in ("", "1", "-"):
+        return ureg.dimensionless
+    try:
+        # historian exports write m3, ft3, cm3: read a trailing 2 or 3 on a unit name as a power
+        text = re.sub(r"(?<=[A-Za-z])([23])\b", r"^\1", text.replace("%", "percent"))
+        return ureg.parse_units(text)
+    except (pint.errors.UndefinedUnitError, pint.errors.DefinitionSyntaxError, ValueError,
+            AttributeError, TypeError, SyntaxError) as exc:
+        raise UnitError(f"unknown unit {text!r} ({exc})") from None
+
+
+def kind_of(unit: str) -> str | None:
+    """Name the physical kind of a unit, as a key of :data:`SI_UNITS`, or None.
+
+    >>> kind_of("L/min"), kind_of("degF"), kind_of("kmol/m3")
+    ('volumetric_flow', 'temperature', 'concentration')
+    """
+    u = _units(unit)
+    for kind, si in SI_UNITS.items():
+        if kind in ("level", "mass_fraction"):
+            continue
+        if u.dimensionality == _units(si).dimensionality:
+            return kind
+    return None
+
+
+def check_kind(unit: str, kind: str) -> None:
+    """Raise :class:`UnitError` unless ``unit`` is a unit of physical kind ``kind``.
+
+    >>> check_kind("gpm", "volumetric_flow")
+    >>> check_kind("kg/h", "volumetric_flow")
+    Traceback (most recent call last):
+    ...
+    kinetrace.units.UnitError: unit 'kg/h' is [mass] / [time], not a volumetric_flow ([length] ** 3 / [time])
+    """
+    u = _units(unit)
+    si = _units(SI_UNITS[kind])
+    if u.dimensionality != si.dimensionality:
+        raise UnitError(f"unit {unit!r} is {u.dimensionality}, not a {kind} ({si.dimensionality})")
+
+
+def to_si(values, unit: str, kind: str) -> np.ndarray | float:
+    """Convert values in ``unit`` to the internal SI unit of ``kind``.
+
+    Parameters
+    ----------
+    values : float or array_like
+        Numbers in ``unit``. NaN stays NaN.
+    unit : str
+        Engineering unit, e.g. ``"m3/h"``, ``"degF"``, ``"lbmol/ft3"``.
+    kind : str
+        Physical kind, a key of :data:`SI_UNITS`.
+
+    Returns
+    -------
+    float or ndarray
+        Values in ``SI_UNITS[kind]``.
+
+    References
+    ----------
+    .. [1] Thompson, A., Taylor, B. N. (2008). Guide for the Use of the International
+       System of Units (SI). NIST Special Publication 811, Appendix B.
+
+    >>> round(to_si(1.0, "lbmol/ft^3", "concentration"), 3)
+    16018.463
+    >>> to_si([20.0, 100.0], "degC", "temperature").round(2).tolist()
+    [293.15, 373.15]
+    """
+    check_kind(unit, kind)
+    arr = np.asarray(values, dtype=float)
+    q = ureg.Quantity(arr, _units(unit)).to(_units(SI_UNITS[kind]))
+    out = np.asarray(q.magnitude, dtype=float)
+    return float(out) if out.ndim == 0 else out
+
+
+def from_si(values, unit: str, kind: str) -> np.ndarray | float:
+    """Convert values from the internal SI unit of ``kind`` to ``unit`` (for display).
+
+    >>> round(from_si(353.15, "degC", "temperature"), 6)
+    80.0
+    """
+    check_kind(unit, kind)
+    arr = np.asarray(values, dtype=float)
+    q = ureg.Quantity(arr, _units(SI_UNITS[kind])).to(_units(unit))
+    out = np.asarray(q.magnitude, dtype=float)
+    return float(out) if out.ndim == 0 else out
+
+
+def parse_quantity(text: str | float | int, kind: str) -> float:
+    """Read a config quantity such as ``"80 degC"`` and return it in SI units of ``kind``.
+
+    A bare number is taken as already in SI.
+
+    >>> parse_quantity("80 degC", "temperature")
+    353.15
+    >>> round(parse_quantity("62 kJ/mol", "molar_energy"), 6)
+    62000.0
+    >>> parse_quantity("3 furlongs/fortnight", "concentration")
+    Traceback (most recent call last):
+    ...
+    kinetrace.units.UnitError: unit 'furlongs/fortnight' is [length] / [time], not a concentration ([substance] / [length] ** 3)
+    """
+    if isinstance(text, (int, float)) and not isinstance(text, bool):
+        return float(text)
+    if not isinstance(text, str):
+        raise UnitError(f"expected a quantity such as '2.5 mol/L', got {text!r}")
+    m = _NUMBER.match(text)
+    if not m:
+        raise UnitError(f"expected a number followed by a unit, such as '2.5 mol/L', got {text!r}")
+    return float(to_si(float(m.group(1)), m.group(2), kind))
