@@ -172,3 +172,24 @@ def parse_quantity(text: str | float | int, kind: str) -> float:
     if not m:
         raise UnitError(f"expected a number followed by a unit, such as '2.5 mol/L', got {text!r}")
     return float(to_si(float(m.group(1)), m.group(2), kind))
+
+
+def parse_rate_constant(text: str, overall_order: float) -> float:
+    """Read a rate constant such as ``"0.9 L/(mol min)"`` into SI for a law of the given overall order.
+
+    SI unit: (mol/m^3)^(1-n) / s for overall order n.
+
+    >>> round(parse_rate_constant("0.311 1/min", 1.0), 8)
+    0.00518333
+    >>> round(parse_rate_constant("1 L/(mol s)", 2.0), 9)
+    0.001
+    """
+    m = _NUMBER.match(text) if isinstance(text, str) else None
+    if not m or not m.group(2):
+        raise UnitError(f"expected a rate constant with its unit, such as '2e-3 1/s', got {text!r}")
+    q = ureg.Quantity(float(m.group(1)), _units(m.group(2)))
+    want = (ureg.mol / ureg.m**3) ** (1.0 - overall_order) / ureg.s
+    if q.dimensionality != want.dimensionality:
+        raise UnitError(f"rate constant {text!r} has dimension {q.dimensionality}; a rate law of overall "
+                        f"order {overall_order:g} needs {want.dimensionality}")
+    return float(q.to(want).magnitude)

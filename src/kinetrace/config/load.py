@@ -1,0 +1,275 @@
+"""Load a plant configuration file and report every problem in it together.
+
+Structural problems (missing keys, wrong types, unknown units) come from
+pydantic; cross-section problems (a species in an equation that is not
+declared, a tag for an unknown species, a reaction that does not balance) are
+checked here. Both are reported at once, each with its key path, in one
+:class:`kinetrace.errors.ConfigError`.
+"""
+
+from __future__ import annotations
+
+import tomllib
+import zoneinfo
+from pathlib import Path
+
+from pydantic import ValidationError
+
+from ..chemistry import check_element_balance, parse_equation, parse_formula
+from ..errors import ChemistryError, ConfigError, KinetraceError, Problem, ProblemList
+from ..units import SI_UNITS, UnitError, check_kind, parse_quantity, parse_rate_constant
+from .schema import ROLE_KIND, PlantConfig, Unit
+
+
+def _loc(loc: tuple) -> str:
+    out = ""
+    for part in loc:
+        out += f"[{part}]" if isinstance(part, int) else (f".{part}" if out else str(part))
+    return out
+
+
+def load_config(path: str | Path) -> PlantConfig:
+    """Read, validate and cross-check a plant configuration TOML file.
+
+    Parameters
+    ----------
+    path : str or Path
+        The TOML file.
+
+    Returns
+    -------
+    PlantConfig
+        The validated configuration (quantities in SI). Its ``base_dir`` (the file's
+        folder) is where relative paths are resolved; see :func:`resolve_path`.
+
+    Raises
+    ------
+    ConfigError
+        Listing every problem found, each with its key path.
+    """
+    path = Path(path)
+    try:
+        raw = tomllib.loads(path.read_text(encoding="utf-8"))
+    except FileNotFoundError:
+        raise ConfigError(str(path), [Problem("(file)", "file not found")]) from None
+    except tomllib.TOMLDecodeError as exc:
+        raise ConfigError(str(path), [Problem("(TOML syntax)", str(exc))]) from None
+    return validate_config(raw, source=str(path))
+
+
+def validate_config(raw: dict, source: str = "<config>") -> PlantConfig:
+    """Validate a configuration already parsed from TOML into a dict; see :func:`load_config`."""
+    problems = ProblemList()
+    try:
+        cfg = PlantConfig.model_validate(raw)
+    except ValidationError as exc:
+        for err in exc.errors():
+            msg = err["msg"].removeprefix("Value error, ")
+            if err["type"] == "missing":
+                msg = "required key is missing"
+            elif err["type"] == "extra_forbidden":
+                msg = "unknown key (check the spelling)"
+            problems.add(_loc(err["loc"]), msg)
+        # cross-checks need a structurally valid file; still cross-check the units that did validate
+        for i, u in enumerate(raw.get("units", []) if isinstance(raw.get("units"), list) else []):
+            try:
+                unit = Unit.model_validate(u)
+            except (ValidationError, TypeError):
+                continue
+            _check_unit(unit, f"units[{i}]", problems)
+        raise ConfigError(source, problems)
+    _check_site(cfg, problems)
+    for i, unit in enumerate(cfg.units):
+        _check_unit(unit, f"units[{i}]", problems)
+    ids = [u.id for u in cfg.units]
+    for d in sorted({x for x in ids if ids.count(x) > 1}):
+        problems.add("units", f"unit id {d!r} is used twice")
+    if problems:
+        raise ConfigError(source, problems)
+    return cfg
+
+
+def _check_site(cfg: PlantConfig, problems: ProblemList) -> None:
+    for where, tz in (("site.timezone", cfg.site.timezone), ("source.timezone", cfg.source.timezone)):
+        if tz is None:
+            continue
+        try:
+            zoneinfo.ZoneInfo(tz)
+        except (zoneinfo.ZoneInfoNotFoundError, ValueError):
+            problems.add(where, f"unknown IANA time zone {tz!r} (e.g. 'Europe/Berlin', 'America/Chicago', 'UTC')")
+    src = cfg.source
+    if src.kind in ("csv", "sqlite") and not src.path:
+        problems.add("source.path", f"a {src.kind} source needs a path")
+    if src.kind == "sql" and not src.url_env:
+        problems.add("source.url_env", "a sql source needs url_env, the name of the environment variable holding its URL")
+
+
+def _rate_constant_kind_ok(text: str, overall_order: float) -> str | None:
+    try:
+        parse_rate_constant(text, overall_order)
+    except UnitError as exc:
+        return str(exc)
+    return None
+
+
+def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
+    names = [s.name for s in unit.species]
+    declared = set(names)
+    formulas: dict[str, str] = {}
+    for i, s in enumerate(unit.species):
+        if s.formula:
+            try:
+                parse_formula(s.formula)
+                formulas[s.name] = s.formula
+            except ChemistryError as exc:
+                problems.add(f"{at}.species[{i}].formula", str(exc))
+        elif s.molar_mass is None:
+            problems.add(f"{at}.species[{i}]", f"species {s.name!r} needs a formula or a molar_mass")
+    consumed_key = False
+    rids = [r.id for r in unit.reactions]
+    for d in sorted({x for x in rids if rids.count(x) > 1}):
+        problems.add(f"{at}.reactions", f"reaction id {d!r} is used twice")
+    if not unit.reactions:
+        problems.add(f"{at}.reactions", "at least one reaction is needed")
+    for j, r in enumerate(unit.reactions):
+        where = f"{at}.reactions[{j}]"
+        try:
+            rx = parse_equation(r.equation, r.id)
+        except ChemistryError as exc:
+            problems.add(f"{where}.equation", str(exc))
+            continue
+        unknown = [s for s in rx.coefficients if s not in declared]
+        for s in unknown:
+            problems.add(f"{where}.equation", f"species {s!r} is not declared in {at}.species")
+        if not unknown and all(s in formulas for s in rx.coefficients):
+            try:
+                check_element_balance(rx, formulas)
+            except ChemistryError as exc:
+                problems.add(f"{where}.equation", str(exc))
+        if rx.coefficients.get(unit.key_reactant, 0.0) < 0:
+            consumed_key = True
+        law = r.rate_law
+        if law is not None:
+            for key in ("orders", "adsorption", "reverse_orders"):
+                for s in getattr(law, key):
+                    if s not in declared:
+                        problems.add(f"{where}.rate_law.{key}.{s}", f"species {s!r} is not declared")
+            msg = _rate_constant_kind_ok(law.k_ref, sum(law.orders.values()))
+            if msg:
+                problems.add(f"{where}.rate_law.k_ref", msg)
+            if law.method == "saturating" and not law.adsorption:
+                problems.add(f"{where}.rate_law.adsorption", "a saturating rate law needs at least one adsorption constant")
+            if law.method == "reversible" and (law.equilibrium_constant is None or law.reaction_enthalpy is None):
+                problems.add(f"{where}.rate_law", "a reversible rate law needs equilibrium_constant and reaction_enthalpy")
+    if unit.reactions and unit.reactions[0].rate_law is None:
+        problems.add(f"{at}.reactions[0].rate_law", "the first (main) reaction needs a rate law")
+    if unit.key_reactant not in declared:
+        problems.add(f"{at}.key_reactant", f"species {unit.key_reactant!r} is not declared")
+    elif not consumed_key:
+        problems.add(f"{at}.key_reactant", f"species {unit.key_reactant!r} is consumed by no reaction")
+    for s in unit.feed:
+        if s not in declared:
+            problems.add(f"{at}.feed.{s}", f"species {s!r} is not declared")
+    # tags
+    tag_names = [t.tag for t in unit.tags]
+    for d in sorted({x for x in tag_names if tag_names.count(x) > 1}):
+        problems.add(f"{at}.tags", f"tag {d!r} is listed twice")
+    roles: dict[tuple, str] = {}
+    for k, t in enumerate(unit.tags):
+        where = f"{at}.tags[{k}]"
+        kind = ROLE_KIND[t.role]
+        if kind == "level":
+            if t.unit.strip() not in ("%", "percent"):
+                problems.add(f"{where}.unit", f"tag {t.tag!r}: a level is read in '%' of span, not {t.unit!r}")
+        else:
+            try:
+                check_kind(t.unit, kind)
+            except UnitError as exc:
+                problems.add(f"{where}.unit", f"tag {t.tag!r}: {exc}")
+        if t.role.endswith("_conc"):
+            if t.species is None:
+                problems.add(f"{where}.species", f"tag {t.tag!r}: a concentration tag must name its species")
+            elif t.species not in declared:
+                problems.add(f"{where}.species", f"tag {t.tag!r}: species {t.species!r} is not declared")
+        elif t.species is not None:
+            problems.add(f"{where}.species", f"tag {t.tag!r}: a {t.role} tag has no species")
+        if t.sigma is not None:
+            s = t.sigma.strip()
+            try:
+                if s.endswith("%"):
+                    float(s[:-1])
+                elif kind != "level":
+                    parse_quantity(s, kind)
+            except (ValueError, UnitError) as exc:
+                problems.add(f"{where}.sigma", f"tag {t.tag!r}: {exc}")
+        if t.sampling in ("analyzer", "lab") and t.max_age is None:
+            problems.add(f"{where}.max_age", f"tag {t.tag!r}: an {t.sampling} tag needs max_age (how long a value may be carried forward)")
+        if t.valid_range is not None and not t.valid_range[0] < t.valid_range[1]:
+            problems.add(f"{where}.valid_range", f"tag {t.tag!r}: low end must be below high end")
+        roles.setdefault((t.role, t.species), t.tag)
+    for role in ("feed_flow", "outlet_flow", "temperature"):
+        if (role, None) not in roles:
+            problems.add(f"{at}.tags", f"no tag has role {role!r}; the design equation needs it")
+    if ("outlet_conc", unit.key_reactant) not in roles:
+        problems.add(f"{at}.tags", f"no outlet_conc tag for the key reactant {unit.key_reactant!r}")
+    if ("feed_conc", unit.key_reactant) not in roles and unit.key_reactant not in unit.feed:
+        problems.add(f"{at}.feed", f"the feed concentration of {unit.key_reactant!r} is neither measured (a feed_conc tag) nor given here")
+    # volume
+    v = unit.volume
+    if (v.fixed is None) == (v.level_tag is None):
+        problems.add(f"{at}.volume", "give either fixed = '<volume>' or level_tag with table, not both or neither")
+    if v.level_tag is not None:
+        if v.level_tag not in tag_names:
+            problems.add(f"{at}.volume.level_tag", f"tag {v.level_tag!r} is not in {at}.tags")
+        if not v.table or len(v.table) < 2:
+            problems.add(f"{at}.volume.table", "a level -> volume table needs at least two (level %, m3) points")
+        elif any(b[0] <= a[0] or b[1] < a[1] for a, b in zip(v.table, v.table[1:])):
+            problems.add(f"{at}.volume.table", "levels must increase and volumes must not decrease")
+    # target
+    if unit.target.species not in declared:
+        problems.add(f"{at}.target.species", f"species {unit.target.species!r} is not declared")
+    try:
+        parse_target_rate(unit.target.rate, 1.0)
+    except UnitError as exc:
+        problems.add(f"{at}.target.rate", str(exc))
+    lim = unit.limits
+    if not lim.temperature[0] < lim.temperature[1]:
+        problems.add(f"{at}.limits.temperature", "low limit must be below high limit")
+    if not lim.feed_flow[0] < lim.feed_flow[1]:
+        problems.add(f"{at}.limits.feed_flow", "low limit must be below high limit")
+    if unit.activity.fresh_period and not unit.activity.fresh_period[0] < unit.activity.fresh_period[1]:
+        problems.add(f"{at}.activity.fresh_period", "start must be before end")
+
+
+def parse_target_rate(text: str, molar_mass: float) -> float:
+    """Production target as a molar rate. [mol/s]
+
+    Parameters
+    ----------
+    text : str
+        Mass rate (``"2.4 t/d"``, ``"100 kg/h"``) or molar rate (``"5 kmol/h"``).
+    molar_mass : float
+        Molar mass of the product. [kg/mol]
+
+    >>> round(parse_target_rate("8.64 t/d", 0.1), 6)
+    1.0
+    >>> round(parse_target_rate("3.6 kmol/h", 0.1), 6)
+    1.0
+    """
+    try:
+        return parse_quantity(text, "molar_flow")
+    except UnitError:
+        pass
+    try:
+        return parse_quantity(text, "mass_rate") / molar_mass
+    except UnitError:
+        raise UnitError(f"target rate {text!r} is neither a mass rate (e.g. '2.4 t/d') nor a molar rate (e.g. '5 kmol/h')") from None
+
+
+def resolve_path(config_path: str | Path, relative: str) -> Path:
+    """A path from the config, resolved against the config file's folder."""
+    p = Path(relative)
+    return p if p.is_absolute() else (Path(config_path).resolve().parent / p)
+
+
+__all__ = ["load_config", "validate_config", "parse_target_rate", "resolve_path", "KinetraceError", "SI_UNITS"]

@@ -1,0 +1,115 @@
+"""The numbers of one reactor, in SI, as the computation stages use them.
+
+:func:`unit_model` turns a validated :class:`~kinetrace.config.schema.Unit` into a
+frozen :class:`UnitModel`: species order, stoichiometric matrix, molar masses,
+rate-law parameters in SI, target as a molar rate. Stages downstream take a
+UnitModel and arrays; they never read the TOML file.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass, field
+
+import numpy as np
+
+from ..chemistry import molar_mass, parse_equation, stoichiometric_matrix
+from ..units import parse_quantity, parse_rate_constant
+from .load import parse_target_rate
+from .schema import Tag, Unit
+
+
+@dataclass(frozen=True)
+class RateLawModel:
+    """Rate law of one reaction in SI. ``params`` go to ``kinetrace.kinetics.ratelaws`` as keywords."""
+
+    method: str
+    k_ref: float                 # [(mol/m^3)^(1-n)/s]
+    activation_energy: float     # [J/mol]
+    reference_temperature: float  # [K]
+    params: dict = field(default_factory=dict)
+
+
+@dataclass(frozen=True)
+class UnitModel:
+    """One reactor's configuration in SI numbers."""
+
+    id: str
+    species: tuple[str, ...]
+    molar_masses: np.ndarray          # [kg/mol], by species
+    reaction_ids: tuple[str, ...]
+    nu: np.ndarray                    # (n_species, n_reactions)
+    rate_laws: dict[str, RateLawModel]
+    key_reactant: str
+    product: str
+    target_rate: float                # [mol/s] of product
+    fixed_volume: float | None        # [m^3]
+    level_table: np.ndarray | None    # (n, 2): level [-, fraction], volume [m^3]
+    feed: dict[str, float]            # known feed concentrations [mol/m^3]
+    tags: tuple[Tag, ...]
+    temperature_limits: tuple[float, float]   # [K]
+    feed_flow_limits: tuple[float, float]     # [m^3/s]
+    fresh_period: tuple | None = None
+
+    def index(self, species: str) -> int:
+        """Row of ``species`` in ``nu`` and in concentration arrays."""
+        return self.species.index(species)
+
+    @property
+    def key_index(self) -> int:
+        return self.index(self.key_reactant)
+
+    @property
+    def product_index(self) -> int:
+        return self.index(self.product)
+
+    @property
+    def main_reaction(self) -> str:
+        return self.reaction_ids[0]
+
+
+def tag_sigma(tag: Tag, kind: str) -> tuple[float, float]:
+    """Measurement uncertainty of a tag as (relative [-], absolute [SI]); one of them is zero."""
+    if tag.sigma is None:
+        return 0.0, 0.0
+    s = tag.sigma.strip()
+    if s.endswith("%"):
+        return float(s[:-1]) / 100.0, 0.0
+    if kind == "temperature":
+        # an uncertainty is a temperature difference: 0.3 degC is 0.3 K, not 273.45 K
+        s = s.replace("degC", "K").replace("degF", "delta_degF")
+    return 0.0, parse_quantity(s, kind)
+
+
+def unit_model(unit: Unit) -> UnitModel:
+    """Build the SI :class:`UnitModel` of a validated unit configuration."""
+    species = tuple(s.name for s in unit.species)
+    mm = np.array([s.molar_mass if s.molar_mass is not None else molar_mass(s.formula) for s in unit.species])
+    reactions = [parse_equation(r.equation, r.id) for r in unit.reactions]
+    nu = stoichiometric_matrix(list(species), reactions)
+    laws: dict[str, RateLawModel] = {}
+    for r in unit.reactions:
+        law = r.rate_law
+        if law is None:
+            continue
+        params: dict = {"orders": dict(law.orders)}
+        if law.method == "saturating":
+            params["adsorption"] = dict(law.adsorption)
+            params["denominator_exponent"] = law.denominator_exponent
+        if law.method == "reversible":
+            params.update(reverse_orders=dict(law.reverse_orders), equilibrium_constant=law.equilibrium_constant,
+                          reaction_enthalpy=law.reaction_enthalpy, reference_temperature=law.reference_temperature)
+        laws[r.id] = RateLawModel(law.method, parse_rate_constant(law.k_ref, sum(law.orders.values())),
+                                  law.activation_energy, law.reference_temperature, params)
+    target_mm = mm[species.index(unit.target.species)]
+    table = None
+    if unit.volume.table:
+        table = np.array(unit.volume.table, dtype=float)
+        table[:, 0] /= 100.0
+    return UnitModel(
+        id=unit.id, species=species, molar_masses=mm, reaction_ids=tuple(r.id for r in unit.reactions), nu=nu,
+        rate_laws=laws, key_reactant=unit.key_reactant, product=unit.target.species,
+        target_rate=parse_target_rate(unit.target.rate, target_mm), fixed_volume=unit.volume.fixed,
+        level_table=table, feed=dict(unit.feed), tags=tuple(unit.tags),
+        temperature_limits=tuple(unit.limits.temperature), feed_flow_limits=tuple(unit.limits.feed_flow),
+        fresh_period=unit.activity.fresh_period,
+    )

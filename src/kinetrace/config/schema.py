@@ -1,0 +1,223 @@
+"""The plant configuration: what a kinetrace TOML file may say, validated by pydantic.
+
+Quantities are written as strings of a number and a unit (``"14 m3"``,
+``"62 kJ/mol"``, ``"80 degC"``) and stored in SI. Tags keep their engineering
+unit (conversion happens at ingest). Cross-checks that span several sections
+(species named in equations, tags, targets) live in :mod:`kinetrace.config.load`,
+which reports every problem of a file together with its key path.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime
+from typing import Annotated, Literal
+
+from pydantic import BaseModel, BeforeValidator, ConfigDict, Field, field_validator
+
+from ..units import parse_quantity
+
+
+def _q(kind: str):
+    return BeforeValidator(lambda v: parse_quantity(v, kind))
+
+
+Volume = Annotated[float, _q("volume")]
+Temperature = Annotated[float, _q("temperature")]
+MolarEnergy = Annotated[float, _q("molar_energy")]
+MolarMass = Annotated[float, _q("molar_mass")]
+Concentration = Annotated[float, _q("concentration")]
+InverseConcentration = Annotated[float, _q("inverse_concentration")]
+VolumetricFlow = Annotated[float, _q("volumetric_flow")]
+Duration = Annotated[float, _q("time")]
+Density = Annotated[float, _q("density")]
+
+
+class _Strict(BaseModel):
+    model_config = ConfigDict(extra="forbid", frozen=True)
+
+
+class Site(_Strict):
+    """The plant site."""
+
+    name: str
+    timezone: str = "UTC"
+
+
+class ColumnNames(_Strict):
+    """Column names of a long historian table or CSV export."""
+
+    timestamp: str = "timestamp"
+    tag: str = "tag"
+    value: str = "value"
+    quality: str | None = "quality"
+
+
+class Source(_Strict):
+    """Where the historian readings come from.
+
+    ``kind = "csv"`` reads ``path`` (a file or a folder of files);
+    ``kind = "sqlite"`` reads the SQLite file at ``path``;
+    ``kind = "sql"`` reads a SQLAlchemy URL taken from the environment variable
+    named by ``url_env`` (never the URL itself in the file: it may hold a password).
+    Relative paths are relative to the config file.
+    """
+
+    kind: Literal["csv", "sqlite", "sql"]
+    path: str | None = None
+    url_env: str | None = None
+    table: str = "readings"
+    layout: Literal["auto", "long", "wide"] = "auto"
+    columns: ColumnNames = ColumnNames()
+    good_quality: list[str] = Field(default_factory=lambda: ["good"])
+    timezone: str | None = None
+
+
+class Store(_Strict):
+    """Where results are written: a SQLAlchemy URL, or the env variable holding it."""
+
+    url: str | None = None
+    url_env: str | None = None
+
+
+class Analysis(_Strict):
+    """Settings of the daily check."""
+
+    grid: Duration = 3600.0
+    output_dir: str = "out"
+
+
+class Species(_Strict):
+    """A chemical species of a unit. ``molar_mass`` defaults to the one of ``formula``."""
+
+    name: str = Field(pattern=r"^[A-Za-z_][A-Za-z0-9_\-]*$")
+    formula: str | None = None
+    molar_mass: MolarMass | None = None
+    description: str = ""
+
+
+class RateLaw(_Strict):
+    """Rate law of one reaction, in the reference-temperature form of Arrhenius.
+
+    ``k_ref`` is written with its unit (``"2.1e-3 1/s"``, ``"0.9 L/(mol min)"``); its
+    dimension is checked against the overall order once the orders are known.
+    """
+
+    method: Literal["power_law", "saturating", "reversible"]
+    k_ref: str
+    activation_energy: MolarEnergy
+    reference_temperature: Temperature
+    orders: dict[str, float]
+    adsorption: dict[str, InverseConcentration] = Field(default_factory=dict)
+    denominator_exponent: float = 1.0
+    reverse_orders: dict[str, float] = Field(default_factory=dict)
+    equilibrium_constant: float | None = None
+    reaction_enthalpy: MolarEnergy | None = None
+
+
+class ReactionSpec(_Strict):
+    """A reaction written as an equation, with its rate law (optional for side reactions)."""
+
+    id: str
+    equation: str
+    rate_law: RateLaw | None = None
+
+
+Role = Literal["feed_flow", "outlet_flow", "feed_conc", "outlet_conc", "temperature", "level"]
+Sampling = Literal["continuous", "analyzer", "lab"]
+
+#: Physical kind of the SI value each tag role carries.
+ROLE_KIND: dict[str, str] = {
+    "feed_flow": "volumetric_flow",
+    "outlet_flow": "volumetric_flow",
+    "feed_conc": "concentration",
+    "outlet_conc": "concentration",
+    "temperature": "temperature",
+    "level": "level",
+}
+
+
+class Tag(_Strict):
+    """One historian tag and what it measures.
+
+    ``sigma`` is the standard measurement uncertainty: ``"1.5 %"`` of reading,
+    or absolute in any unit of the tag's kind (``"0.03 mol/L"``).
+    ``valid_range`` is the physical range in the tag's own unit.
+    ``max_age`` is how long an analyzer or lab value may be carried forward.
+    """
+
+    tag: str
+    role: Role
+    unit: str
+    species: str | None = None
+    sigma: str | None = None
+    sampling: Sampling = "continuous"
+    max_age: Duration | None = None
+    dead_time: Duration = 0.0
+    valid_range: tuple[float, float] | None = None
+    description: str = ""
+
+
+class VolumeSpec(_Strict):
+    """Liquid volume: fixed, or from a level tag through a level -> volume table."""
+
+    fixed: Volume | None = None
+    level_tag: str | None = None
+    table: list[tuple[float, float]] | None = None  # (level %, volume m3)
+
+
+class Target(_Strict):
+    """Production target: product species and rate (mass or molar rate, e.g. ``"2.4 t/d"``)."""
+
+    species: str
+    rate: str
+
+
+class Limits(_Strict):
+    """Safe operating limits of the unit (a what-if never suggests a value outside them)."""
+
+    temperature: tuple[Temperature, Temperature]
+    feed_flow: tuple[VolumetricFlow, VolumetricFlow]
+    level: tuple[float, float] | None = None
+
+
+class Activity(_Strict):
+    """How the fresh-catalyst baseline is taken: a period of the history, or the rate law's k_ref."""
+
+    fresh_period: tuple[datetime, datetime] | None = None
+    catalyst_changes: list[datetime] = Field(default_factory=list)
+
+
+class Unit(_Strict):
+    """One reactor."""
+
+    id: str
+    description: str = ""
+    volume: VolumeSpec
+    species: list[Species]
+    reactions: list[ReactionSpec]
+    key_reactant: str
+    feed: dict[str, Concentration] = Field(default_factory=dict)
+    tags: list[Tag]
+    target: Target
+    limits: Limits
+    activity: Activity = Activity()
+    density: Density | None = None
+
+    @field_validator("species")
+    @classmethod
+    def _unique_species(cls, v: list[Species]) -> list[Species]:
+        names = [s.name for s in v]
+        dup = sorted({n for n in names if names.count(n) > 1})
+        if dup:
+            raise ValueError(f"species declared twice: {', '.join(dup)}")
+        return v
+
+
+class PlantConfig(_Strict):
+    """A whole kinetrace configuration file."""
+
+    site: Site
+    source: Source
+    store: Store = Store()
+    analysis: Analysis = Analysis()
+    units: list[Unit] = Field(min_length=1)
