@@ -131,11 +131,22 @@ def check_element_balance(reaction: Reaction, formulas: dict[str, str], tol: flo
             side[el] = side.get(el, 0.0) + abs(nu) * n
     bad = [el for el in sorted(set(left) | set(right)) if abs(left.get(el, 0.0) - right.get(el, 0.0)) > tol]
     if bad:
-        eq = " + ".join(s for s, c in reaction.coefficients.items() if c < 0) + " -> " + " + ".join(
-            s for s, c in reaction.coefficients.items() if c > 0)
+        eq = equation_text(reaction)
         el = bad[0]
         more = f" (also {', '.join(bad[1:])})" if len(bad) > 1 else ""
         raise ChemistryError(
             f"reaction {reaction.name!r} ({eq}) does not balance: {el} is {left.get(el, 0.0):g} on the left, "
             f"{right.get(el, 0.0):g} on the right{more}"
         )
+
+
+def equation_text(reaction: Reaction) -> str:
+    """Write a reaction back as an equation.
+
+    >>> equation_text(parse_equation("2 A + B -> 1.5 C", "x"))
+    '2 A + B -> 1.5 C'
+    """
+    def side(sign: float) -> str:
+        return " + ".join((f"{abs(c):g} {sp}" if abs(c) != 1 else sp)
+                          for sp, c in reaction.coefficients.items() if c * sign > 0)
+    return f"{side(-1)} {'<=>' if reaction.reversible else '->'} {side(1)}"

@@ -70,13 +70,13 @@ def validate_config(raw: dict, source: str = "<config>") -> PlantConfig:
             elif err["type"] == "extra_forbidden":
                 msg = "unknown key (check the spelling)"
             problems.add(_loc(err["loc"]), msg)
-        # cross-checks need a structurally valid file; still cross-check the units that did validate
-        for i, u in enumerate(raw.get("units", []) if isinstance(raw.get("units"), list) else []):
-            try:
-                unit = Unit.model_validate(u)
-            except (ValidationError, TypeError):
-                continue
-            _check_unit(unit, f"units[{i}]", problems)
+        # cross-checks need a structurally valid unit: check each unit with its invalid parts
+        # pruned away, so that the problems pydantic did not see are still reported now
+        units = raw.get("units") if isinstance(raw, dict) else None
+        for i, u in enumerate(units if isinstance(units, list) else []):
+            unit = _pruned_unit(u)
+            if unit is not None:
+                _check_unit(unit, f"units[{i}]", problems)
         raise ConfigError(source, problems)
     _check_site(cfg, problems)
     for i, unit in enumerate(cfg.units):
@@ -87,6 +87,37 @@ def validate_config(raw: dict, source: str = "<config>") -> PlantConfig:
     if problems:
         raise ConfigError(source, problems)
     return cfg
+
+
+def _pruned_unit(u) -> Unit | None:
+    """Validate a unit after removing the keys pydantic rejected; None if that cannot be done.
+
+    Only optional keys can be removed (a required one that is removed comes back as
+    "missing", and then the unit's cross-checks wait for the structural fixes).
+    """
+    import copy
+
+    if not isinstance(u, dict):
+        return None
+    u = copy.deepcopy(u)
+    for _ in range(6):
+        try:
+            return Unit.model_validate(u)
+        except ValidationError as exc:
+            for err in exc.errors():
+                loc = [k for k in err["loc"] if not (isinstance(k, str) and k.startswith("function-"))]
+                if err["type"] == "missing" or not loc:
+                    return None
+                parent = u
+                try:
+                    for key in loc[:-1]:
+                        parent = parent[key]
+                    if not isinstance(parent, dict):
+                        return None
+                    parent.pop(loc[-1], None)
+                except (KeyError, IndexError, TypeError):
+                    return None
+    return None
 
 
 def _check_site(cfg: PlantConfig, problems: ProblemList) -> None:

@@ -1,0 +1,61 @@
+"""CSTR design equation against published worked examples."""
+
+import numpy as np
+import pandas as pd
+import pytest
+
+from kinetrace.chemistry import conversion
+from kinetrace.reactor import key_reactant_rate, net_formation_rate, residence_time
+from kinetrace.units import to_si
+
+
+def test_fogler_ethylene_glycol_cstr_back_calculates_k():
+    # Fogler, Elements of Chemical Reaction Engineering (4th/5th ed.), ethylene glycol CSTR:
+    # first order, k = 0.311 1/min, C_A0 = 0.5 lbmol/ft3, v0 = 15.34 ft3/min, X = 0.8 in
+    # V = 197.3 ft3 (REFERENCES.md: 197.3 ft3 [computed] ~ 1480 gal [found]).
+    v0 = to_si(15.34, "ft^3/min", "volumetric_flow")
+    ca0 = to_si(0.5, "lbmol/ft^3", "concentration")
+    volume = to_si(197.3, "ft^3", "volume")
+    x = 0.8
+    rate = key_reactant_rate(v0 * ca0, x, volume)
+    k = rate / (ca0 * (1 - x))
+    # 197.3 is printed to 4 s.f.; 0.311 to 3 s.f.
+    assert k * 60 == pytest.approx(0.311, rel=1e-3)
+    # the same from the species balance form
+    r = net_formation_rate(v0, ca0, v0, ca0 * (1 - x), volume)
+    assert -r == pytest.approx(rate, rel=1e-12)
+    # 197.3 ft3 in US gallons: about 1480 gal [found], 3 s.f.
+    assert to_si(197.3, "ft^3", "volume") / to_si(1, "US_liquid_gallon", "volume") == pytest.approx(1480, rel=5e-3)
+
+
+def test_fogler_two_cstrs_in_series_and_parallel():
+    # Fogler, ethylene glycol example: two 800-gal CSTRs in parallel give X = 0.81,
+    # in series X = 0.90 [found in REFERENCES.md]. First order: X = k tau / (1 + k tau) per tank.
+    k = 0.311 / 60
+    v0 = to_si(15.34, "ft^3/min", "volumetric_flow")
+    v = to_si(800, "US_liquid_gallon", "volume")
+    tau_par = residence_time(v, v0 / 2)
+    x_par = k * tau_par / (1 + k * tau_par)
+    tau = residence_time(v, v0)
+    x_ser = 1 - 1 / (1 + k * tau) ** 2
+    assert x_par == pytest.approx(0.81, abs=0.005)
+    assert x_ser == pytest.approx(0.90, abs=0.005)
+    # and the design equation gives back k from the parallel tank's conversion
+    ca0 = 1000.0
+    rate = key_reactant_rate(v0 / 2 * ca0, x_par, v)
+    assert rate / (ca0 * (1 - x_par)) == pytest.approx(k, rel=1e-12)
+
+
+@pytest.mark.parametrize("kind", ["scalar", "array", "series", "nan"])
+def test_input_types(kind):
+    # common practice, no source: the functions accept every input type and propagate NaN
+    vals = {"scalar": 2.0, "array": np.array([2.0, 2.0]), "series": pd.Series([2.0, 2.0]),
+            "nan": np.array([2.0, np.nan])}[kind]
+    out = np.asarray(key_reactant_rate(vals, 0.5, 4.0))
+    if kind == "nan":
+        assert out[0] == 0.25 and np.isnan(out[1])
+    else:
+        assert np.all(out == 0.25)
+    x = np.asarray(conversion(vals, 1.0))
+    assert np.nanmax(x) == 0.5
+    assert np.isnan(key_reactant_rate(1.0, 0.5, 0.0))
