@@ -1,1 +1,73 @@
-"""kinetrace.reconcile."""
+"""kinetrace.reconcile: data reconciliation and gross-error detection for CSTR data.
+
+Pure numerics on numpy arrays (no configuration, file or database access). Every
+function takes arrays with a leading time axis (T, ...) and solves all steps at once;
+units are SI (flows [m^3/s], concentrations [mol/m^3], extents [mol/s]).
+
+Public API
+----------
+Reconciliation
+    ``reconcile_linear(y, sigma, A_y, A_z=None, b=None, *, cov="diag", names=None,
+    unknown_names=None, constraint_names=None) -> Reconciliation``
+        Linear WLS with constraints ``A_y x + A_z z = b`` in closed form (Kuehn &
+        Davidson 1961), unmeasured ``z`` eliminated by projection (Crowe et al. 1983).
+        NaN in ``y`` = missing at that step (treated as unmeasured there); sigma 0 =
+        known exactly.
+    ``reconcile_cstr(q_in, q_out, c_in, c_out, nu, *, sigma_q_in, sigma_q_out,
+    sigma_c_in, sigma_c_out, dvdt=None, sigma_dvdt=0.0, accumulation=None,
+    element_matrix=None, species=None, reactions=None, max_iter=50, tol=1e-10,
+    nonconvergence="flag", cov="diag", sigma_source="given", chunk_size=50000)
+    -> CSTRReconciliation``
+        Bilinear flow x concentration reconciliation of a liquid CSTR by successive
+        linearisation (Crowe 1986), vectorised over steps with a per-step convergence
+        mask; returns extents of reaction [mol/s] with standard deviations.
+    ``CSTRBalances(nu, element_matrix=None, species=(), reactions=())``
+        The CSTR model: ``pack``, ``residual``, ``jacobian``, ``check_observable``,
+        ``reconcile(y_packed, sigma_packed, accumulation=None, ...)``.
+
+Classification
+    ``classify_variables(A_y, A_z=None, names=None, unknown_names=None) -> Classification``
+        Redundant / non-redundant measured, observable / unobservable unmeasured;
+        ``Classification.require_observable`` raises :class:`UnobservableError`.
+
+Closure
+    Every result carries ``imbalance``, ``imbalance_sd``, ``imbalance_scale`` (T, m) and
+    the properties ``relative_imbalance`` and ``standardized_imbalance``.
+
+Gross errors
+    ``global_test(result, alpha=0.05) -> GlobalTest`` (chi-square, dof = rank),
+    ``measurement_test(result, alpha=0.05) -> MeasurementTest`` (Sidak-corrected),
+    ``sidak_critical_value(alpha, n_tests)``,
+    ``serial_elimination(solve, y, alpha=0.05, max_eliminations=None) -> SerialElimination``,
+    ``detect_persistent_bias(result, time=None, *, k=0.5, h=5.0, clip=3.0,
+    min_duration=0.0, sensors=None) -> list[BiasEvent]`` (robust tabular CUSUM),
+    ``cusum(u, k)``.
+
+Uncertainty
+    ``estimate_sigma(y, steady, method="pooled_std", min_length=10, names=None)
+    -> SigmaEstimate``; ``sigma_methods()`` lists the methods. A ``SigmaEstimate`` may be
+    passed wherever a sigma is expected; results record ``sigma_source``.
+
+Errors
+    :class:`ReconciliationError` (bad inputs), :class:`UnobservableError` (sensors cannot
+    determine the required unknowns), :class:`ConvergenceError`; all derive from
+    :class:`kinetrace.errors.KinetraceError`.
+"""
+
+from ._errors import ConvergenceError, ReconciliationError, UnobservableError
+from .classify import Classification, classify_variables
+from .cstr import CSTRBalances, CSTRReconciliation, reconcile_cstr
+from .gross_errors import (GlobalTest, MeasurementTest, SerialElimination, global_test,
+                           measurement_test, serial_elimination, sidak_critical_value)
+from .linear import reconcile_linear
+from .persistence import BiasEvent, cusum, detect_persistent_bias
+from .results import Reconciliation
+from .uncertainty import SigmaEstimate, estimate_sigma, sigma_methods
+
+__all__ = [
+    "BiasEvent", "CSTRBalances", "CSTRReconciliation", "Classification", "ConvergenceError",
+    "GlobalTest", "MeasurementTest", "Reconciliation", "ReconciliationError", "SerialElimination",
+    "SigmaEstimate", "UnobservableError", "classify_variables", "cusum", "detect_persistent_bias",
+    "estimate_sigma", "global_test", "measurement_test", "reconcile_cstr", "reconcile_linear",
+    "serial_elimination", "sidak_critical_value", "sigma_methods",
+]
