@@ -1,7 +1,6 @@
 # kinetrace: set-up and everyday commands. Every target bootstraps what it needs and is idempotent.
 #   make demo       - generate the sample historian and run the daily check on the demo plant
 #   make test       - the whole test suite (doctests included), with its own PostgreSQL server
-#   make dashboard  - open the dashboard on the demo plant's results
 #   make bench      - run the benchmarks (they print ratios, they never fail on time)
 
 PYTHON ?= python3
@@ -10,7 +9,7 @@ BIN    := $(VENV)/bin
 CONFIG ?= config/demo_plant.toml
 PYTEST_ARGS ?=
 
-.PHONY: demo test dashboard bench sysdeps-test clean
+.PHONY: demo test bench sysdeps-test clean
 
 $(BIN)/python:
 	$(PYTHON) -m venv $(VENV)
@@ -37,9 +36,6 @@ demo: $(VENV)/.stamp-run
 
 test: $(VENV)/.stamp-test sysdeps-test
 	$(BIN)/python -m pytest $(PYTEST_ARGS)
-
-dashboard: $(VENV)/.stamp-run
-	$(BIN)/kinetrace dashboard --config $(CONFIG)
 
 bench: $(VENV)/.stamp-test
 	@for b in benchmarks/bench_*.py; do echo "== $$b"; $(BIN)/python $$b || exit 1; done
