@@ -193,3 +193,60 @@ def parse_rate_constant(text: str, overall_order: float) -> float:
         raise UnitError(f"rate constant {text!r} has dimension {q.dimensionality}; a rate law of overall "
                         f"order {overall_order:g} needs {want.dimensionality}")
     return float(q.to(want).magnitude)
+
+
+#: Measured kinds a tag of each SI kind may be read in; the first is the kind itself.
+#: A mass flow becomes a volumetric flow through a density; a mass fraction or a mass
+#: concentration becomes a molar concentration through a molar mass (and a density).
+TAG_MEASURES: dict[str, tuple[str, ...]] = {
+    "volumetric_flow": ("volumetric_flow", "mass_flow"),
+    "concentration": ("concentration", "mass_fraction", "mass_concentration"),
+    "temperature": ("temperature",),
+}
+
+_MASS_FRACTION = {"wt%": "wtpct", "wt %": "wtpct", "%wt": "wtpct", "% wt": "wtpct", "wt-%": "wtpct",
+                  "%w/w": "wtpct", "% w/w": "wtpct", "w/w": "dimensionless", "mass fraction": "dimensionless"}
+
+
+def tag_unit_text(unit: str) -> str:
+    """Spelling of a tag unit that the registry reads (``"wt%"`` -> ``"wtpct"``).
+
+    >>> tag_unit_text("wt %"), tag_unit_text("m3/h")
+    ('wtpct', 'm3/h')
+    """
+    u = unit.strip()
+    return _MASS_FRACTION.get(u.lower(), u)
+
+
+def tag_measure(unit: str, kind: str) -> str:
+    """Which quantity a tag unit measures, among those allowed for an SI ``kind``.
+
+    Returns ``kind`` itself, or ``"mass_flow"`` for a volumetric-flow tag read in
+    mass units (kg/h, lb/h), or ``"mass_fraction"`` (wt%, kg/kg) or
+    ``"mass_concentration"`` (g/L, kg/m3) for a concentration tag. A bare ``%`` on
+    a concentration is refused: it could be mass, mole or volume percent.
+
+    Raises
+    ------
+    UnitError
+        The unit is unknown, or measures none of the allowed quantities.
+
+    >>> tag_measure("lb/h", "volumetric_flow"), tag_measure("wt%", "concentration")
+    ('mass_flow', 'mass_fraction')
+    >>> tag_measure("%", "concentration")
+    Traceback (most recent call last):
+    ...
+    kinetrace.units.UnitError: unit '%' on a concentration is ambiguous: write 'wt%' for a mass percent, or a molar concentration such as 'mol/L'
+    """
+    allowed = TAG_MEASURES.get(kind, (kind,))
+    text = tag_unit_text(unit)
+    if kind == "concentration" and text.strip() in ("%", "percent"):
+        raise UnitError(f"unit {unit!r} on a concentration is ambiguous: write 'wt%' for a mass percent, "
+                        "or a molar concentration such as 'mol/L'")
+    dim = _units(text).dimensionality
+    si = {"mass_fraction": "dimensionless", "mass_concentration": "kg/m^3"}
+    for measure in allowed:
+        if dim == _units(si.get(measure) or SI_UNITS[measure]).dimensionality:
+            return measure
+    names = " or ".join(allowed)
+    raise UnitError(f"unit {unit!r} is {dim}, not a {names}")

@@ -70,6 +70,20 @@ class Source(_Strict):
     columns: ColumnNames = ColumnNames()
     good_quality: list[str] = Field(default_factory=lambda: ["good"])
     timezone: str | None = None
+    # --- ingest options (see kinetrace.ingest; all optional) ---
+    delimiter: str = Field(",", min_length=1, max_length=1)   # CSV field separator, e.g. ";"
+    decimal: Literal[".", ","] = "."                           # CSV decimal mark
+    skip_rows: int = Field(0, ge=0)          # CSV lines before the header line (export banners)
+    description_rows: int = Field(0, ge=0)   # CSV lines after the header to skip (tag descriptions)
+    units_row: bool = False                  # CSV line after the header (and description rows) gives units
+    file_pattern: str = "*.csv*"             # files read when path is a folder (sorted by name)
+    query: str | None = None                 # SQL text with bound :since, :until (replaces table)
+    time_column: Literal["text", "native"] = "text"  # SQL timestamp column: ISO text or a timestamp type
+    chunk_rows: int = Field(200_000, ge=1000)        # rows per streamed chunk
+    dst_ambiguous: Literal["infer", "daylight", "standard", "flag"] = "infer"  # repeated local hour
+    dst_missing: Literal["flag", "shift"] = "flag"   # local times in the skipped hour
+    frozen_after: Duration | None = 14400.0   # default flat-line limit of continuous/analyzer tags [s]
+    max_gap: Duration | None = None           # default hold limit of continuous tags [s] (None: 3 grid steps)
 
 
 class Store(_Strict):
@@ -155,6 +169,12 @@ class Tag(_Strict):
     dead_time: Duration = 0.0
     valid_range: tuple[float, float] | None = None
     description: str = ""
+    # --- ingest options (see kinetrace.ingest; all optional) ---
+    density: Density | None = None            # for a mass-flow or mass-fraction tag; else the unit's density
+    max_rate: float | None = None             # spike limit: largest credible change, tag units per minute
+    frozen_after: Duration | None = None      # flat-line limit, overrides source.frozen_after [s]
+    max_gap: Duration | None = None           # hold limit of a continuous reading, overrides source.max_gap [s]
+    good_quality: list[str] | None = None     # quality codes counted good for this tag (else source's)
 
 
 class VolumeSpec(_Strict):

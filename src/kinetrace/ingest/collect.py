@@ -1,0 +1,291 @@
+"""Collect parsed readings of one unit's tags, batch by batch, with each reading's fate.
+
+Readers (CSV, SQL) hand over batches of strings and numbers; the collector maps
+tag names, parses time stamps (once per distinct text), applies the quality-code
+map and the time window, and keeps per tag only three arrays: UTC time [ns],
+value [tag unit] and fate code. Readings of tags of other units, or of tags in
+no unit, are counted, not kept. Problems that have a file and line (a value
+that is not a number, an unreadable time stamp) are recorded with them.
+"""
+
+from __future__ import annotations
+
+from collections import Counter
+from dataclasses import dataclass, field
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.compute as pc
+
+from ..config.schema import Source, Tag
+from .fates import AMBIGUOUS_TIME, BAD_QUALITY, BAD_TIME, BAD_VALUE, GOOD, NONEXISTENT_TIME
+from .timestamps import NAT, parse_timestamps
+
+#: At most this many detailed records (file:line, text) are kept per tag and fate.
+MAX_DETAILS = 50
+
+
+@dataclass
+class TagBuffer:
+    """Readings of one tag as they arrive (file order)."""
+
+    ts: list = field(default_factory=list)        # int64 [ns UTC]
+    value: list = field(default_factory=list)     # float64 [tag unit]
+    fate: list = field(default_factory=list)      # int8
+    second: list = field(default_factory=list)    # (positions, int64 second-pass time) for repeated hour
+    n: int = 0
+
+
+@dataclass
+class Detail:
+    """A located reading that was refused: where, tag, fate code and what was wrong."""
+
+    where: str
+    tag: str
+    fate: int
+    message: str
+
+
+def to_float(values: pa.Array, decimal: str = ".") -> tuple[np.ndarray, np.ndarray]:
+    """Strings to float64; returns (values with NaN where empty or unreadable, mask of unreadable non-empty).
+
+    >>> v, bad = to_float(pa.array(["1.5", None, "x", " 2 "]))
+    >>> v.tolist()[:2], bad.tolist()
+    ([1.5, nan], [False, False, True, False])
+    """
+    if pa.types.is_floating(values.type) or pa.types.is_integer(values.type):
+        out = pc.cast(values, pa.float64()).to_numpy(zero_copy_only=False)
+        return np.asarray(out, dtype=float), np.zeros(len(values), bool)
+    s = values
+    if decimal == ",":
+        s = pc.replace_substring(s, ",", ".")
+    try:
+        out = pc.cast(s, pa.float64()).to_numpy(zero_copy_only=False)
+        out = np.asarray(out, dtype=float)
+        return out, np.zeros(len(values), bool)
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        pass
+    import pandas as pd
+
+    s = pc.utf8_trim_whitespace(s)
+    ser = pd.Series(s.to_numpy(zero_copy_only=False), dtype=object)
+    num = pd.to_numeric(ser, errors="coerce").to_numpy(dtype=float, na_value=np.nan)
+    present = ser.map(lambda v: isinstance(v, str) and v != "").to_numpy(dtype=bool)
+    return num, present & np.isnan(num)
+
+
+def _codes(arr: pa.Array) -> tuple[np.ndarray, list]:
+    d = arr if pa.types.is_dictionary(arr.type) else pc.dictionary_encode(arr)
+    if isinstance(d, pa.ChunkedArray):
+        d = d.combine_chunks()
+    idx = d.indices.to_numpy(zero_copy_only=False)
+    idx = np.where(d.indices.is_null().to_numpy(zero_copy_only=False), -1, idx).astype(np.int64)
+    return idx, d.dictionary.to_pylist()
+
+
+class Collector:
+    """Accumulates readings of a unit's tags from any number of batches.
+
+    Parameters
+    ----------
+    tags : sequence of Tag
+        The unit's tags.
+    source : Source
+        Source options: good quality codes, time zone and DST policies, decimal mark.
+    all_tags : set of str
+        Every tag of every unit in the config (to tell "another unit's" from "unknown").
+    window : (int, int)
+        Readings kept: ``lo <= t < hi`` [ns UTC]; ``NAT`` bounds are open.
+    """
+
+    def __init__(self, tags, source: Source, all_tags: set[str], window=(NAT, NAT)):
+        self.tags: list[Tag] = list(tags)
+        self.names = [t.tag for t in self.tags]
+        self.index = {n: i for i, n in enumerate(self.names)}
+        self.source = source
+        self.all_tags = set(all_tags)
+        self.buffers = [TagBuffer() for _ in self.tags]
+        self.good = [set(t.good_quality if t.good_quality is not None else source.good_quality) for t in self.tags]
+        self.lo, self.hi = window
+        self.rows_total = 0
+        self.other_unit = 0
+        self.unknown: Counter = Counter()
+        self.no_tag = 0
+        self.outside = np.zeros(len(self.tags), dtype=np.int64)
+        self.details: list[Detail] = []
+        self._ndetail: Counter = Counter()
+        self.notes: list[tuple[str, str]] = []
+
+    # -- batches -------------------------------------------------------------------------------
+    def tag_index(self, names: list) -> np.ndarray:
+        """Unit tag index of each name (-1 another unit's tag, -2 unknown tag, -3 no tag)."""
+        out = np.empty(len(names), dtype=np.int64)
+        for k, nm in enumerate(names):
+            if nm is None or (isinstance(nm, str) and nm.strip() == ""):
+                out[k] = -3
+            elif nm in self.index:
+                out[k] = self.index[nm]
+            else:
+                out[k] = -1 if nm in self.all_tags else -2
+        return out
+
+    def parse_times(self, ts: pa.Array):
+        """Parse a batch's time stamps once: (utc [ns], status, second-pass utc [ns], texts, codes)."""
+        if pa.types.is_timestamp(ts.type):
+            t = pc.cast(ts, pa.timestamp("ns", tz=ts.type.tz or "UTC")) if ts.type.unit != "ns" else ts
+            utc = t.cast(pa.int64()).to_numpy(zero_copy_only=False)
+            utc = np.where(t.is_null().to_numpy(zero_copy_only=False), NAT, utc).astype(np.int64)
+            return utc, np.where(utc == NAT, BAD_TIME, GOOD).astype(np.int8), utc, None, None
+        if not (pa.types.is_string(ts.type) or pa.types.is_large_string(ts.type) or pa.types.is_dictionary(ts.type)):
+            ts = pc.cast(ts, pa.string())
+        codes, uniq = _codes(ts)
+        u_utc, u_st, u_sec = parse_timestamps(uniq, self.source.timezone, dst_ambiguous=self.source.dst_ambiguous,
+                                              dst_missing=self.source.dst_missing)
+        u_utc, u_st, u_sec = np.r_[u_utc, NAT], np.r_[u_st, BAD_TIME].astype(np.int8), np.r_[u_sec, NAT]
+        return u_utc[codes], u_st[codes], u_sec[codes], uniq, codes
+
+    def add(self, tag, ts, value, quality=None, *, locate=None, decimal: str = ".", parsed=None) -> None:
+        """Add one batch.
+
+        Parameters
+        ----------
+        tag : pyarrow.Array of str, or str
+            Tag of each reading, or one tag for the whole batch (a wide-layout column).
+        ts : pyarrow.Array
+            Time stamps: ISO 8601 strings, or a timestamp array.
+        value : pyarrow.Array
+            Values as strings or numbers [tag unit].
+        quality : pyarrow.Array of str, optional
+            Quality codes; without them every reading counts as good quality.
+        locate : callable, optional
+            ``locate(rows) -> list of str``: file and line of batch rows, for messages.
+        parsed : tuple, optional
+            ``parse_times(ts)`` already done (a wide layout parses its time column once).
+        """
+        n = len(ts)
+        if n == 0:
+            return
+        self.rows_total += n
+        if isinstance(tag, str):
+            ti = self.tag_index([tag])[0]
+            tix = np.full(n, ti, dtype=np.int64)
+            names = [tag]
+            name_of_row = np.zeros(n, dtype=np.int64)
+        else:
+            name_of_row, names = _codes(tag)
+            lut = self.tag_index(names)
+            tix = np.where(name_of_row >= 0, lut[np.maximum(name_of_row, 0)], -3)
+        if (tix < 0).any():
+            self.other_unit += int((tix == -1).sum())
+            self.no_tag += int((tix == -3).sum())
+            unk = name_of_row[tix == -2]
+            if unk.size:
+                for code, cnt in zip(*np.unique(unk, return_counts=True)):
+                    self.unknown[names[code]] += int(cnt)
+            if (tix == -3).any() and locate is not None:
+                rows = np.flatnonzero(tix == -3)[:MAX_DETAILS]
+                for w in locate(rows):
+                    self.notes.append((w, "row has no tag name; counted, not used"))
+        keep = np.flatnonzero(tix >= 0)
+        if keep.size == 0:
+            return
+        if keep.size < n:
+            sel = pa.array(keep)
+            value = value.take(sel)
+            quality = quality.take(sel) if quality is not None else None
+            tix = tix[keep]
+        else:
+            keep = None
+        if parsed is None:
+            parsed = self.parse_times(ts)
+        utc, status, second, uniq, codes = parsed
+        if keep is not None:
+            utc, status, second = utc[keep], status[keep], second[keep]
+            codes = codes[keep] if codes is not None else None
+        if locate is not None:
+            for fate_code in (BAD_TIME, NONEXISTENT_TIME):
+                rows = np.flatnonzero(status == fate_code)
+                if rows.size:
+                    self._detail_rows(rows, tix, fate_code, keep, locate,
+                                      lambda r, f=fate_code: _bad_time_text(uniq, codes[r] if codes is not None else -1,
+                                                                            self.source.timezone, f))
+        vals, unreadable = to_float(value, decimal)
+        fate = status.copy()
+        if quality is not None:
+            qcodes, qnames = _codes(quality)
+            for i in np.unique(tix):
+                good = np.array([q in self.good[i] for q in qnames] + [False], dtype=bool)
+                rows = tix == i
+                bad_q = ~good[qcodes[rows]]
+                f = fate[rows]
+                f[((f == GOOD) | (f == AMBIGUOUS_TIME)) & bad_q] = BAD_QUALITY
+                fate[rows] = f
+        bad_v = ((fate == GOOD) | (fate == AMBIGUOUS_TIME)) & ~np.isfinite(vals)
+        fate[bad_v] = BAD_VALUE
+        if locate is not None and (bad_v & unreadable).any():
+            texts = value
+            self._detail_rows(np.flatnonzero(bad_v & unreadable), tix, BAD_VALUE, keep, locate,
+                              lambda r: f"value {texts[int(r)].as_py()!r} is not a number")
+        # time window
+        inside = np.ones(len(utc), bool)
+        if self.lo != NAT:
+            inside &= (utc >= self.lo) | (utc == NAT)
+        if self.hi != NAT:
+            inside &= (utc < self.hi) | (utc == NAT)
+        if not inside.all():
+            self.outside += np.bincount(tix[~inside], minlength=len(self.tags))
+            utc, second, vals, fate, tix = utc[inside], second[inside], vals[inside], fate[inside], tix[inside]
+        order = np.argsort(tix, kind="stable")
+        bounds = np.searchsorted(tix[order], np.arange(len(self.tags) + 1))
+        for i in range(len(self.tags)):
+            a, b = bounds[i], bounds[i + 1]
+            if a == b:
+                continue
+            r = order[a:b]
+            buf = self.buffers[i]
+            f = fate[r]
+            amb = np.flatnonzero(f == AMBIGUOUS_TIME)
+            if amb.size:
+                buf.second.append((amb + buf.n, second[r][amb]))
+            buf.ts.append(utc[r])
+            buf.value.append(vals[r])
+            buf.fate.append(f)
+            buf.n += b - a
+
+    def _detail_rows(self, rows, tix, fate, keep, locate, message) -> None:
+        for r in rows:
+            i = int(tix[r])
+            key = (i, fate)
+            self._ndetail[key] += 1
+            if self._ndetail[key] > MAX_DETAILS:
+                continue
+            orig = int(r if keep is None else keep[r])
+            self.details.append(Detail(locate([orig])[0], self.names[i], fate, message(r)))
+
+    def add_note(self, where: str, message: str) -> None:
+        """Record a problem that concerns no single reading (e.g. a blank or malformed line)."""
+        self.notes.append((where, message))
+
+    # -- result ----------------------------------------------------------------------------------
+    def arrays(self, i: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, list]:
+        """Concatenated (time [ns], value [tag unit], fate, repeated-hour second-pass times) of tag ``i``."""
+        buf = self.buffers[i]
+        if not buf.ts:
+            e = np.empty(0, np.int64)
+            return e, np.empty(0), np.empty(0, np.int8), []
+        ts, val, fate = np.concatenate(buf.ts), np.concatenate(buf.value), np.concatenate(buf.fate)
+        buf.ts, buf.value, buf.fate = [], [], []
+        return ts, val, fate, buf.second
+
+
+def _bad_time_text(uniq, code, timezone, fate=BAD_TIME) -> str:
+    text = uniq[int(code)] if (uniq is not None and code >= 0) else None
+    if fate == NONEXISTENT_TIME:
+        return (f"local time {text!r} does not exist in {timezone} (skipped by the daylight-saving change); "
+                "set source.dst_missing = 'shift' to read it with the offset before the change")
+    if text is None or (isinstance(text, str) and not text.strip()):
+        return "time stamp is empty"
+    if timezone is None and not any(c in text[10:] for c in "Zz+-"):
+        return (f"time stamp {text!r} has no UTC offset and source.timezone is not set "
+                "(give ISO 8601 with 'Z' or an offset, or declare the IANA zone of local time)")
+    return f"time stamp {text!r} is not ISO 8601 (e.g. 2026-09-01T06:00:00Z)"

@@ -1,0 +1,241 @@
+"""Read historian CSV exports: long or wide layout, any delimiter and decimal mark, gzip, folders.
+
+A file is read in blocks of whole lines (bounded memory), each parsed by
+pyarrow's CSV reader with every column as text; numbers and time stamps are
+converted by :class:`~kinetrace.ingest.collect.Collector`, which keeps each
+reading's fate. Every line is accounted for: header and declared extra header
+lines, readings, blank lines and malformed lines (wrong number of fields),
+which are reported with file and line.
+
+Layouts (``source.layout``; ``"auto"`` decides from the header):
+
+* **long**: a time column, a tag column, a value column and optionally a
+  quality column, named by ``source.columns``;
+* **wide**: a time column and one column per tag (column name = tag name); no
+  quality codes.
+
+Header variations are declared, not guessed: ``skip_rows`` lines before the
+header, ``description_rows`` lines after it, and ``units_row`` (a line of
+units, one per column, checked against the configured tag units).
+"""
+
+from __future__ import annotations
+
+import csv
+import gzip
+import io
+from pathlib import Path
+
+import numpy as np
+import pyarrow as pa
+import pyarrow.csv as pcsv
+
+from ..config.schema import Source, Tag
+from ..errors import IngestError, Problem
+from ..units import UnitError, _units, tag_unit_text
+from .collect import Collector
+
+#: Bytes read per block (whole lines are completed after it).
+BLOCK_BYTES = 8 << 20
+
+
+def list_files(path: Path, pattern: str) -> list[Path]:
+    """The files a CSV source reads: the file itself, or a folder's files matching ``pattern``, sorted by name."""
+    if path.is_dir():
+        files = sorted(p for p in path.glob(pattern) if p.is_file())
+        if not files:
+            raise IngestError(str(path), [Problem("(folder)", f"no files match {pattern!r} (source.file_pattern)")])
+        return files
+    if not path.exists():
+        raise IngestError(str(path), [Problem("(file)", "file not found (source.path is relative to the config file)")])
+    return [path]
+
+
+def _open(path: Path):
+    with open(path, "rb") as f:
+        magic = f.read(2)
+    if magic == b"\x1f\x8b":
+        return gzip.open(path, "rb")
+    return open(path, "rb")
+
+
+def _split(line: bytes, delimiter: str, where: str) -> list[str]:
+    try:
+        text = line.decode("utf-8-sig").rstrip("\r\n")
+    except UnicodeDecodeError:
+        raise IngestError(where, [Problem(where, "line is not UTF-8 text")]) from None
+    return next(csv.reader([text], delimiter=delimiter), [])
+
+
+def detect_layout(header: list[str], source: Source, where: str) -> str:
+    """``"long"`` or ``"wide"`` from the header (or the configured layout, checked).
+
+    >>> detect_layout(["timestamp", "tag", "value"], Source(kind="csv", path="x"), "f.csv")
+    'long'
+    >>> detect_layout(["timestamp", "FT-1", "TT-2"], Source(kind="csv", path="x"), "f.csv")
+    'wide'
+    """
+    c = source.columns
+    cols = [h.strip() for h in header]
+    problems = []
+    if c.timestamp not in cols:
+        problems.append(Problem(f"{where}:header", f"no time column {c.timestamp!r} (source.columns.timestamp); "
+                                f"header is {cols!r}"))
+    dups = sorted({h for h in cols if cols.count(h) > 1})
+    if dups:
+        problems.append(Problem(f"{where}:header", f"column name(s) {dups!r} appear more than once"))
+    if problems:
+        raise IngestError(where, problems)
+    is_long = c.tag in cols and c.value in cols
+    layout = source.layout if source.layout != "auto" else ("long" if is_long else "wide")
+    if layout == "long" and not is_long:
+        raise IngestError(where, [Problem(f"{where}:header", f"a long layout needs columns {c.tag!r} and {c.value!r}; "
+                                          f"header is {cols!r}")])
+    if layout == "wide" and len(cols) < 2:
+        raise IngestError(where, [Problem(f"{where}:header", "a wide layout needs a time column and at least one tag column")])
+    return layout
+
+
+def _check_units(header: list[str], units: list[str], tags: dict[str, Tag], where: str) -> None:
+    problems = []
+    for name, u in zip(header, units):
+        t = tags.get(name.strip())
+        if t is None or not u.strip():
+            continue
+        try:
+            same = _units(tag_unit_text(u)) == _units(tag_unit_text(t.unit))
+        except UnitError:
+            same = False
+        if not same:
+            problems.append(Problem(f"{where}:units row", f"tag {t.tag!r}: the file says {u.strip()!r}, "
+                                    f"the config says {t.unit!r}; correct one of them"))
+    if problems:
+        raise IngestError(where, problems)
+
+
+class _Lines:
+    """Maps the rows of one parsed block to file lines."""
+
+    def __init__(self, file: str, first_line: int, n_rows: int, invalid: list[int]):
+        self.file, self.first, self.n, self.invalid = file, first_line, n_rows, invalid
+        self._pos = None
+
+    def __call__(self, rows) -> list[str]:
+        if self._pos is None:
+            pos = np.arange(self.n + len(self.invalid))
+            self._pos = np.delete(pos, np.asarray(self.invalid, dtype=np.int64)) if self.invalid else pos
+        return [f"{self.file}:{self.first + int(self._pos[int(r)])}" for r in rows]
+
+
+def read_csv_file(path: Path, source: Source, collector: Collector, tags: dict[str, Tag],
+                  block_bytes: int = BLOCK_BYTES) -> dict:
+    """Read one CSV file into ``collector``; returns line counts of the file.
+
+    Raises
+    ------
+    IngestError
+        The file is empty, its header lacks the needed columns, or its units row
+        disagrees with the config.
+    """
+    name = str(path)
+    counts = {"lines": 0, "header_lines": 0, "blank_lines": 0, "malformed_lines": 0}
+    try:
+        with _open(path) as f:
+            return _read_open(f, name, source, collector, tags, block_bytes, counts)
+    except (OSError, EOFError, gzip.BadGzipFile) as exc:
+        raise IngestError(name, [Problem("(file)", f"cannot read: {type(exc).__name__}: {exc}")]) from None
+
+
+def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
+    for _ in range(source.skip_rows):
+        f.readline()
+    header_line = f.readline()
+    if not header_line.strip():
+        raise IngestError(name, [Problem(f"{name}:{source.skip_rows + 1}", "file is empty (no header line)")])
+    header = [h.strip() for h in _split(header_line, source.delimiter, name)]
+    layout = detect_layout(header, source, name)
+    line_no = source.skip_rows + 1
+    for _ in range(source.description_rows):
+        f.readline()
+        line_no += 1
+    if source.units_row:
+        units = _split(f.readline(), source.delimiter, name)
+        line_no += 1
+        _check_units(header, units, tags, name)
+    counts["header_lines"] = line_no
+    c = source.columns
+    next_line = line_no + 1
+    saw_data = False
+    while True:
+        buf = f.read(block_bytes)
+        if not buf:
+            break
+        if not buf.endswith(b"\n"):
+            buf += f.readline()
+        n_lines = buf.count(b"\n") + (0 if buf.endswith(b"\n") else 1)
+        invalid: list[int] = []
+
+        def handler(row, _inv=invalid, _first=next_line):
+            k = (row.number or 1) - 1
+            _inv.append(k)
+            text = (row.text or "").strip()
+            if text == "":
+                counts["blank_lines"] += 1
+            else:
+                counts["malformed_lines"] += 1
+                collector.add_note(f"{name}:{_first + k}",
+                                   f"malformed line: {row.actual_columns} fields, expected {row.expected_columns}: "
+                                   f"{text[:80]!r}; counted, not used")
+            return "skip"
+
+        try:
+            table = pcsv.read_csv(
+                io.BytesIO(buf),
+                read_options=pcsv.ReadOptions(column_names=header, use_threads=False, block_size=len(buf) + 1),
+                parse_options=pcsv.ParseOptions(delimiter=source.delimiter, invalid_row_handler=handler,
+                                                ignore_empty_lines=False),
+                convert_options=pcsv.ConvertOptions(column_types={h: pa.string() for h in header},
+                                                    strings_can_be_null=True, quoted_strings_can_be_null=True,
+                                                    null_values=[""]))
+        except (pa.ArrowInvalid, UnicodeDecodeError) as exc:
+            raise IngestError(name, [Problem(f"{name}:{next_line}-{next_line + n_lines - 1}",
+                                             f"cannot parse as CSV: {exc}")]) from None
+        locate = _Lines(name, next_line, table.num_rows, invalid)
+        if table.num_rows:
+            saw_data = True
+        if layout == "long":
+            collector.add(table.column(c.tag).combine_chunks(), table.column(c.timestamp).combine_chunks(),
+                          table.column(c.value).combine_chunks(),
+                          table.column(c.quality).combine_chunks() if c.quality and c.quality in header else None,
+                          locate=locate, decimal=source.decimal)
+        else:
+            ts = table.column(c.timestamp).combine_chunks()
+            parsed = collector.parse_times(ts)
+            for h in header:
+                if h == c.timestamp:
+                    continue
+                collector.add(h, ts, table.column(h).combine_chunks(), None, locate=locate,
+                              decimal=source.decimal, parsed=parsed)
+        next_line += n_lines
+    counts["lines"] = next_line - 1
+    if not saw_data:
+        collector.add_note(name, "file has a header but no readings")
+    return counts
+
+
+def read_csv_source(path: Path, source: Source, collector: Collector, tags: dict[str, Tag]) -> dict:
+    """Read a CSV source (one file, or a folder of files) into ``collector``; returns summed line counts."""
+    total = {"files": 0, "lines": 0, "header_lines": 0, "blank_lines": 0, "malformed_lines": 0}
+    problems: list[Problem] = []
+    for p in list_files(path, source.file_pattern):
+        try:
+            counts = read_csv_file(p, source, collector, tags)
+        except IngestError as exc:
+            problems.extend(exc.problems)
+            continue
+        total["files"] += 1
+        for k, v in counts.items():
+            total[k] += v
+    if problems:
+        raise IngestError(str(path), problems)
+    return total

@@ -1,0 +1,282 @@
+"""``read_unit``: one unit's historian readings -> the canonical :class:`UnitData`.
+
+Steps: tag units are checked and their SI maps built (a bad unit is a config
+error naming the tag); the source is read for the window (pushed down into SQL);
+each tag's readings are placed in time (daylight-saving policy), sorted,
+screened (:mod:`~kinetrace.ingest.screening`), shifted by the tag's dead time,
+converted to SI and aligned to the grid (:mod:`~kinetrace.ingest.align`).
+Every reading read ends in exactly one fate, counted in ``quality``.
+
+Window and look-back: readings in ``[since, until)`` make the grid; to carry
+analyzer and lab values and hold continuous ones across ``since``, readings up
+to the longest ``max_age`` / hold limit before ``since`` are read as well, and
+up to the longest dead time after ``until``.
+"""
+
+from __future__ import annotations
+
+from datetime import datetime
+from pathlib import Path
+
+import numpy as np
+import pandas as pd
+
+from ..config.load import resolve_path
+from ..config.model import UnitModel, unit_model
+from ..config.schema import PlantConfig, Tag, Unit
+from ..errors import ConfigError, IngestError, Problem
+from . import align, screening
+from .collect import Collector
+from .conversion import unit_scales
+from .csv_source import read_csv_source
+from .fates import AMBIGUOUS_TIME, CONFLICT, FATE_NAMES, FROZEN, GOOD, N_FATES, OUT_OF_RANGE, SPIKE, \
+    BAD_QUALITY, BAD_VALUE, fate_names
+from .sql_source import read_sql_source
+from .timestamps import NAT, place_repeated_hour
+from .unitdata import UnitData, check_unit_data
+
+#: Fates whose presence in an interval marks that interval not valid.
+TAINTING = (BAD_QUALITY, BAD_VALUE, CONFLICT, OUT_OF_RANGE, SPIKE, FROZEN)
+_DAY = 86_400 * 10**9
+
+
+def _to_ns(t) -> int:
+    if t is None:
+        return NAT
+    ts = pd.Timestamp(t)
+    if ts.tzinfo is None:
+        ts = ts.tz_localize("UTC")
+    return int(ts.tz_convert("UTC").as_unit("ns").value)
+
+
+def find_unit(cfg: PlantConfig, unit: UnitModel | Unit | str) -> tuple[int, Unit]:
+    """The configured unit (and its position) for an id, a Unit or a UnitModel."""
+    uid = unit if isinstance(unit, str) else unit.id
+    for i, u in enumerate(cfg.units):
+        if u.id == uid:
+            return i, u
+    raise ConfigError("config", [Problem("units", f"no unit {uid!r}; units are {[u.id for u in cfg.units]!r}")])
+
+
+def _hold_limit(tag: Tag, source, grid: float, ts: np.ndarray) -> float:
+    if tag.max_gap is not None:
+        return tag.max_gap
+    if source.max_gap is not None:
+        return source.max_gap
+    if ts.size > 1:
+        med = float(np.median(np.diff(ts))) / 1e9
+        return max(grid, 5.0 * med)
+    return grid
+
+
+def _lookback(unit: Unit, source, grid: float) -> float:
+    lb = grid
+    for t in unit.tags:
+        if t.sampling == "continuous":
+            lb = max(lb, t.max_gap or source.max_gap or grid)
+        else:
+            lb = max(lb, t.max_age or 0.0)
+        lb = max(lb, t.dead_time + grid)
+    return lb
+
+
+def read_unit(cfg: PlantConfig, unit: UnitModel | Unit | str, *, config_path, since=None, until=None,
+              grid: float | None = None, engine=None) -> UnitData:
+    """Read, screen, convert and align one unit's historian readings.
+
+    Parameters
+    ----------
+    cfg : PlantConfig
+        Validated configuration.
+    unit : UnitModel, Unit or str
+        The unit, or its id.
+    config_path : str or Path
+        The config file; relative source paths are taken from its folder.
+    since, until : datetime, str or Timestamp, optional
+        Window ``[since, until)``; a naive time is taken as UTC. Default: all data.
+    grid : float, optional
+        Grid step. [s] Default ``cfg.analysis.grid``.
+    engine : sqlalchemy.Engine, optional
+        An engine to use for a SQL source (tests, connection pools).
+
+    Returns
+    -------
+    UnitData
+
+    Raises
+    ------
+    ConfigError
+        A tag's unit cannot be converted; the SQL URL variable is not set.
+    IngestError
+        The source cannot be read (file missing or empty, header wrong, database
+        down), or no reading at all exists for a tag the computation needs.
+    """
+    idx_u, u = find_unit(cfg, unit)
+    model = unit if isinstance(unit, UnitModel) else unit_model(u)
+    scales = unit_scales(u, dict(zip(model.species, model.molar_masses)), where=f"units[{idx_u}]",
+                         source=str(config_path))
+    grid = float(grid or cfg.analysis.grid)
+    since_ns, until_ns = _to_ns(since), _to_ns(until)
+    if since_ns != NAT and until_ns != NAT and until_ns <= since_ns:
+        raise ValueError(f"until ({until}) must be after since ({since})")
+    look = int(_lookback(u, cfg.source, grid) * 1e9)
+    max_dead = int(max((t.dead_time for t in u.tags), default=0.0) * 1e9)
+    lo = since_ns - look if since_ns != NAT else NAT
+    hi = until_ns + max_dead if until_ns != NAT else NAT
+    all_tags = {t.tag for uu in cfg.units for t in uu.tags}
+    col = Collector(u.tags, cfg.source, all_tags, window=(lo, hi))
+    src = cfg.source
+    base = Path(config_path).resolve().parent
+    if src.kind == "csv":
+        report = read_csv_source(resolve_path(config_path, src.path), src, col, {t.tag: t for t in u.tags})
+    else:
+        report = read_sql_source(src, col, [t.tag for t in u.tags], lo, hi, base_dir=base, engine=engine)
+    return assemble(cfg, u, model, scales, col, report, grid=grid, since_ns=since_ns, until_ns=until_ns)
+
+
+def _resolve_repeated_hour(ts, fate, second):
+    if not second:
+        return ts, fate
+    pos = np.concatenate([p for p, _ in second])
+    sec = np.concatenate([s for _, s in second])
+    keep = fate[pos] == AMBIGUOUS_TIME
+    pos, sec = pos[keep], sec[keep]
+    if pos.size == 0:
+        return ts, fate
+    first = ts[pos]
+    place = place_repeated_hour(first // _DAY, first)
+    ts, fate = ts.copy(), fate.copy()
+    ts[pos[place == 1]] = sec[place == 1]
+    fate[pos[place >= 0]] = GOOD
+    return ts, fate
+
+
+def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dict, *, grid: float,
+             since_ns: int = NAT, until_ns: int = NAT) -> UnitData:
+    """Screen and align the collected readings of a unit (the pure part of :func:`read_unit`)."""
+    src = cfg.source
+    names = col.names
+    per_tag = []
+    for i, t in enumerate(u.tags):
+        ts, val, fate, second = col.arrays(i)
+        ts, fate = _resolve_repeated_hour(ts, fate, second)
+        late, ts, (val, fate) = screening.sort_readings(ts, val, fate)
+        frozen = None if t.sampling == "lab" else (t.frozen_after if t.frozen_after is not None else src.frozen_after)
+        fate = screening.screen(ts, val, fate, valid_range=t.valid_range, max_rate=t.max_rate, frozen_after=frozen)
+        per_tag.append((ts, val, fate, late))
+    # grid
+    good_times = [ts[(f == GOOD)] for ts, _, f, _ in per_tag]
+    if since_ns != NAT:
+        first = since_ns
+    else:
+        cand = [g[0] for g in good_times if g.size]
+        first = min(cand) if cand else NAT
+    if until_ns != NAT:
+        last = until_ns - 1
+    else:
+        cand = [g[-1] for g in good_times if g.size]
+        last = max(cand) if cand else NAT
+    required = _required(u, model)
+    counts = [ts.size for ts, _, _, _ in per_tag]
+    problems = []
+    for key, tags in required.items():
+        if all(counts[names.index(t)] == 0 for t in tags):
+            problems.append(Problem(", ".join(tags), f"no readings in the source for {_window_text(since_ns, until_ns)}; "
+                                    f"unit {u.id} needs a {key[0]} tag{' for ' + key[1] if key[1] else ''} "
+                                    "(check the tag name against the historian)"))
+    if first == NAT or problems:
+        if first == NAT and not problems:
+            problems.append(Problem(f"unit {u.id}", f"no usable readings of any of its tags for {_window_text(since_ns, until_ns)}"))
+        raise IngestError(_source_name(cfg), problems + [Problem(w, m) for w, m in col.notes[:20]])
+    edges = align.grid_edges(first, last, grid)
+    if until_ns != NAT and edges[-1] > until_ns and (until_ns - edges[0]) % int(grid * 1e9) == 0:
+        edges = edges[edges <= until_ns]
+    index = pd.DatetimeIndex(pd.to_datetime(edges[:-1], utc=True), name="timestamp")
+    nb = len(index)
+    values = np.full((nb, len(names)), np.nan)
+    valid = np.zeros((nb, len(names)), bool)
+    rows = []
+    flagged = []
+    for i, t in enumerate(u.tags):
+        ts, val, fate, late = per_tag[i]
+        shift = np.int64(round(t.dead_time * 1e9))
+        g = fate == GOOD
+        tg, xg = ts[g] - shift, scales[t.tag].to_si(val[g])
+        if t.sampling == "continuous":
+            v, cov = align.time_weighted_mean(tg, xg, edges, _hold_limit(t, src, grid, tg))
+            carried = np.zeros(nb, bool)
+        else:
+            v, carried = align.sample_mean_carry(tg, xg, edges, t.max_age)
+        taint_mask = np.isin(fate, TAINTING)
+        tainted = align.count_per_interval(ts[taint_mask] - shift, edges) > 0
+        values[:, i] = v
+        valid[:, i] = ~np.isnan(v) & ~tainted
+        fc = np.bincount(fate, minlength=N_FATES)
+        row = {"rows_read": int(ts.size)}
+        row.update({FATE_NAMES[k]: int(fc[k]) for k in range(N_FATES)})
+        row.update(outside_window=int(col.outside[i]), out_of_order=int(late), intervals=nb,
+                   missing_intervals=int(np.isnan(v).sum()), carried_intervals=int(carried.sum()),
+                   flagged_intervals=int((tainted & ~np.isnan(v)).sum()), valid_intervals=int(valid[:, i].sum()))
+        rows.append(row)
+        bad = ~g
+        if bad.any():
+            flagged.append(pd.DataFrame({
+                "tag": t.tag,
+                "timestamp": pd.to_datetime(np.where(ts[bad] == NAT, np.iinfo(np.int64).min, ts[bad]), utc=True),
+                "value": val[bad], "fate": [FATE_NAMES[int(k)] for k in fate[bad]]}))
+    vdf = pd.DataFrame(values, index=index, columns=names)
+    mdf = pd.DataFrame(valid, index=index, columns=names)
+    quality = pd.DataFrame(rows, index=pd.Index(names, name="tag"))
+    notes = [Problem(w, m) for w, m in col.notes]
+    for i, t in enumerate(u.tags):
+        if counts[i] == 0:
+            notes.append(Problem(t.tag, f"no readings for {_window_text(since_ns, until_ns)}; its column is all missing"))
+    for name, n in sorted(col.unknown.items()):
+        notes.append(Problem(name, f"{n} reading(s) of a tag that is in no unit of the config; counted, not used"))
+    volume = _volume(u, model, vdf, mdf)
+    roles: dict = {}
+    for t in u.tags:
+        roles.setdefault((t.role, t.species), []).append(t.tag)
+    details = pd.DataFrame([(d.where, d.tag, FATE_NAMES[d.fate], d.message) for d in col.details],
+                           columns=["where", "tag", "fate", "message"])
+    flagged_df = (pd.concat(flagged, ignore_index=True) if flagged else
+                  pd.DataFrame({"tag": pd.Series(dtype=str), "timestamp": pd.Series(dtype="datetime64[ns, UTC]"),
+                                "value": pd.Series(dtype=float), "fate": pd.Series(dtype=str)}))
+    report = dict(report, rows_total=col.rows_total, rows_other_units=col.other_unit,
+                  rows_unknown_tags=int(sum(col.unknown.values())), rows_without_tag=col.no_tag,
+                  unknown_tags=dict(col.unknown))
+    data = UnitData(unit_id=u.id, values=vdf, valid=mdf, quality=quality, roles=roles, volume=volume,
+                    flagged=flagged_df, details=details, notes=notes, source_report=report, grid=grid)
+    check_unit_data(data)
+    return data
+
+
+def _volume(u: Unit, model: UnitModel, values: pd.DataFrame, valid: pd.DataFrame) -> pd.Series:
+    if model.fixed_volume is not None:
+        return pd.Series(model.fixed_volume, index=values.index, name="volume")
+    tab = model.level_table
+    lv = values[u.volume.level_tag].to_numpy()
+    vol = np.interp(lv, tab[:, 0], tab[:, 1])
+    vol = np.where((lv >= tab[0, 0]) & (lv <= tab[-1, 0]), vol, np.nan)
+    return pd.Series(vol, index=values.index, name="volume")
+
+
+def _required(u: Unit, model: UnitModel) -> dict:
+    by: dict = {}
+    for t in u.tags:
+        by.setdefault((t.role, t.species), []).append(t.tag)
+    req = {k: v for k, v in by.items() if k in (("feed_flow", None), ("outlet_flow", None), ("temperature", None),
+                                                  ("outlet_conc", u.key_reactant))}
+    if u.volume.level_tag:
+        req[("level", None)] = [u.volume.level_tag]
+    return req
+
+
+def _window_text(since_ns, until_ns) -> str:
+    f = (lambda n: "open" if n == NAT else pd.Timestamp(n, tz="UTC").isoformat())
+    return f"[{f(since_ns)}, {f(until_ns)})"
+
+
+def _source_name(cfg) -> str:
+    s = cfg.source
+    return s.path if s.kind in ("csv", "sqlite") else f"database from ${s.url_env}"
