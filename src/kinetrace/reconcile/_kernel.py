@@ -87,7 +87,23 @@ def _pinv_sym(S):
     return Sinv, rank
 
 
-def wls_kernel(y, var, A, Az=None, b=None, full_cov=False):
+def _solve_sym(S, rhs):
+    """Solve stacked SPD systems ``S lam = rhs``; pseudo-inverse where rank deficient."""
+    k, p, _ = S.shape
+    if p == 0:
+        return np.zeros((k, 0))
+    try:
+        L = np.linalg.cholesky(S)
+        ok = np.all(np.diagonal(L, axis1=1, axis2=2) ** 2 > RANK_TOL * np.diagonal(S, axis1=1, axis2=2))
+    except np.linalg.LinAlgError:
+        ok = False
+    if ok:
+        return np.linalg.solve(S, rhs[:, :, None])[..., 0]
+    Sinv, _ = _pinv_sym(S)
+    return np.einsum("kpq,kq->kp", Sinv, rhs)
+
+
+def wls_kernel(y, var, A, Az=None, b=None, full_cov=False, minimal=False):
     """Reconcile stacked measurements with linear constraints ``A x + Az z = b``.
 
     Parameters
@@ -104,6 +120,8 @@ def wls_kernel(y, var, A, Az=None, b=None, full_cov=False):
         Right-hand side (default 0).
     full_cov : bool
         Also return full covariance matrices.
+    minimal : bool
+        Only ``x`` and ``z`` (fast path for the inner iterations of nonlinear problems).
 
     Returns
     -------
@@ -126,6 +144,23 @@ def wls_kernel(y, var, A, Az=None, b=None, full_cov=False):
     alt = np.linalg.norm(Az[0], axis=1)
     rs = np.where(rs > 0, rs, np.where(alt > 0, alt, 1.0))
     As, Azs, bs = A / rs[:, None], Az / rs[:, None], b / rs
+
+    if minimal:
+        out = {"x": np.empty((T, n)), "z": np.empty((T, nz))}
+        for idx, P, pinv, obs in _projection(Azs):
+            yk, vk = y[idx], var[idx]
+            Ask, bsk = _take(As, idx), _take(bs, idx)
+            B = P @ Ask
+            rr = np.einsum("kpn,kn->kp", np.broadcast_to(B, (yk.shape[0],) + B.shape[1:]), yk)
+            rr -= np.einsum("kpm,km->kp", np.broadcast_to(P, (yk.shape[0],) + P.shape[1:]),
+                            np.broadcast_to(bsk, (yk.shape[0], m)))
+            BV = B * vk[:, None, :]
+            lam = _solve_sym(BV @ _t(B), rr)
+            x = yk - np.einsum("kpn,kp->kn", BV, lam)
+            rhs = bsk - np.einsum("kmn,kn->km", np.broadcast_to(Ask, (yk.shape[0],) + Ask.shape[1:]), x)
+            z = np.einsum("kzm,km->kz", np.broadcast_to(pinv, (yk.shape[0],) + pinv.shape[1:]), rhs)
+            out["x"][idx], out["z"][idx] = x, np.where(obs, z, np.nan)
+        return out
 
     out = {
         "x": np.empty((T, n)), "var_adj": np.empty((T, n)), "var_x": np.empty((T, n)),

@@ -229,50 +229,52 @@ class CSTRBalances:
                            source, conv, iters, {"n_species": self.n_species})
         return CSTRReconciliation(**{f: getattr(res, f) for f in res.__dataclass_fields__})
 
+    def _linearised(self, v, xi, y, sigma, status, acc, groups, full_cov, minimal):
+        """Solve the problem linearised at (v, xi) for the given steps."""
+        J = self.jacobian(v)
+        Jxi = self.extent_matrix
+        b = np.einsum("kmn,kn->km", J, v) + xi @ Jxi.T - self.residual(v, xi, acc)
+        return solve_patterns(y, sigma, status, J, Jxi, b, full_cov, groups, minimal)
+
     def _iterate(self, y, sigma, status, acc, groups, max_iter, tol, full_cov):
         T, n = y.shape
         nr = len(self.reactions)
-        Jxi = self.extent_matrix
         v, xi = self._start(y), np.zeros((T, nr))
-        final = None
         conv = np.zeros(T, bool)
         iters = np.zeros(T, int)
         active = np.arange(T)
-        scale_v = np.where(status == 0, sigma, np.abs(v) + 1.0)
+        sd_x = sd_z = None
         for it in range(1, max_iter + 1):
-            va, xa = v[active], xi[active]
+            sub = (groups[0], groups[1][active])
             acc_a = None if acc is None else acc[active]
-            J = self.jacobian(va)
-            f = self.residual(va, xa, acc_a)
-            b = (J @ va[:, :, None])[..., 0] + xa @ Jxi.T - f
-            o = solve_patterns(y[active], sigma[active], status[active], J, Jxi, b, full_cov,
-                               (groups[0], groups[1][active]))
+            va, xa = v[active], xi[active]
+            o = self._linearised(va, xa, y[active], sigma[active], status[active], acc_a, sub,
+                                 False, minimal=it > 1)
+            if it == 1:  # step scales: sigma for measured, first-pass sd for the estimated
+                vx = np.sqrt(np.nan_to_num(o["var_x"]))
+                sd_x = np.where(status == 0, sigma, np.where(vx > 0, vx, np.abs(va) + 1e-300))
+                vz = np.sqrt(np.nan_to_num(o["var_z"]))
+                sd_z = np.where(vz > 0, vz, np.abs(np.nan_to_num(o["z"])) + 1e-300)
             v_new = np.where(np.isfinite(o["x"]), o["x"], va)
             xi_new = np.where(np.isfinite(o["z"]), o["z"], xa)
-            sd_x = np.where(status[active] == 0, sigma[active], np.sqrt(np.nan_to_num(o["var_x"])) + 1e-300)
-            sd_x = np.where(sd_x > 1e-300, sd_x, scale_v[active])
-            sd_z = np.sqrt(np.nan_to_num(o["var_z"]))
-            sd_z = np.where(sd_z > 0, sd_z, np.abs(xi_new) + 1e-300)
-            step = np.max(np.abs(v_new - va) / sd_x, axis=1, initial=0.0)
-            step = np.maximum(step, np.max(np.abs(xi_new - xa) / sd_z, axis=1, initial=0.0))
+            step = np.max(np.abs(v_new - va) / sd_x[active], axis=1, initial=0.0)
+            step = np.maximum(step, np.max(np.abs(xi_new - xa) / sd_z[active], axis=1, initial=0.0))
             v[active], xi[active] = v_new, xi_new
-            if final is None:
-                final = {k: np.empty((T,) + a.shape[1:], a.dtype) for k, a in o.items()}
-            for k, a in o.items():
-                final[k][active] = a
             iters[active] = it
             done = step < tol
             conv[active[done]] = True
             active = active[~done]
             if active.size == 0:
                 break
+        # statistics at the final linearisation point (one more closed-form pass)
+        final = self._linearised(v, xi, y, sigma, status, acc, groups, full_cov, minimal=False)
         # exact (not linearised) closure at the raw data with the estimated unknowns
         raw = np.where(status == MISSING, v, y)
         final["imbalance"] = self.residual(raw, np.nan_to_num(final["z"]), acc)
         ns = self.n_species
         Wa = np.abs(self._wm)
         qc = np.abs(raw[:, :1] * raw[:, 2:2 + ns]) + np.abs(raw[:, 1:2] * raw[:, 2 + ns:2 + 2 * ns])
-        thr = qc @ Wa.T + np.abs(np.nan_to_num(final["z"])) @ np.abs(Jxi[:-1]).T
+        thr = qc @ Wa.T + np.abs(np.nan_to_num(final["z"])) @ np.abs(self.extent_matrix[:-1]).T
         vol = np.abs(raw[:, 0]) + np.abs(raw[:, 1]) + np.abs(raw[:, -1])
         final["imbalance_scale"] = 0.5 * np.hstack([thr, vol[:, None]])
         final["converged"], final["iterations"] = conv, iters

@@ -37,6 +37,10 @@ class BiasEvent:
         True if this sensor explains the overlapping alarms best (largest mean
         standardised shift); False if its alarm is smearing from ``smeared_from``.
     smeared_from : str or None
+    equivalent : tuple of str
+        Other sensors alarming at the same time with a mean standardised shift within
+        ``equivalence`` of this one: the data cannot tell them apart (e.g. feed and outlet
+        analysers of the same species in a CSTR, whose balance columns are parallel).
     """
 
     sensor: str
@@ -52,6 +56,7 @@ class BiasEvent:
     mean_standardized: float
     primary: bool = True
     smeared_from: str | None = None
+    equivalent: tuple = ()
 
 
 def cusum(u, k):
@@ -93,7 +98,7 @@ def _bias_estimate(result):
 
 
 def detect_persistent_bias(result: Reconciliation, time=None, *, k=0.5, h=5.0, clip=3.0,
-                           min_duration=0.0, sensors=None) -> list[BiasEvent]:
+                           min_duration=0.0, sensors=None, equivalence=0.1) -> list[BiasEvent]:
     """Find persistent biases in the sensors of a time series of reconciliations.
 
     For every redundant sensor a two-sided tabular CUSUM runs on its standardised
@@ -122,6 +127,9 @@ def detect_persistent_bias(result: Reconciliation, time=None, *, k=0.5, h=5.0, c
         differences). [s if numeric]
     sensors : sequence of str, optional
         Names to monitor (default: all variables).
+    equivalence : float
+        Relative closeness of mean standardised shifts below which overlapping alarms
+        are reported as an equivalent set of the primary event. [-]
 
     Returns
     -------
@@ -183,17 +191,20 @@ def detect_persistent_bias(result: Reconciliation, time=None, *, k=0.5, h=5.0, c
                 events.append(BiasEvent(names[j], sign, int(a), int(alarm), int(end), time[a],
                                         time[alarm], time[end], mag, msd, mz))
     events.sort(key=lambda e: (e.onset_index, -abs(e.mean_standardized)))
-    return _attribute(events)
+    return _attribute(events, equivalence)
 
 
-def _attribute(events):
+def _attribute(events, equivalence):
     """Mark, within groups of overlapping events, the one with largest mean shift as primary."""
     out = []
     for e in events:
         rivals = [f for f in events if f.onset_index <= e.end_index and e.onset_index <= f.end_index]
         best = max(rivals, key=lambda f: abs(f.mean_standardized))
         if best is e:
-            out.append(e)
+            top = abs(e.mean_standardized)
+            eq = tuple(f.sensor for f in rivals
+                       if f is not e and abs(f.mean_standardized) >= (1 - equivalence) * top)
+            out.append(BiasEvent(**{**e.__dict__, "equivalent": eq}))
         else:
             out.append(BiasEvent(**{**e.__dict__, "primary": False, "smeared_from": best.sensor}))
     return out

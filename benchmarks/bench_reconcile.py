@@ -1,0 +1,114 @@
+"""Benchmark: bilinear CSTR reconciliation of 1,000,000 time steps.
+
+Invented scenario: A + D -> B, B + D -> C in one liquid CSTR, both flows and the feed and
+outlet concentrations of all four species measured (10 measured variables, 2 extents).
+
+Prints (never asserts):
+1. the ratio against a per-step baseline, scipy.optimize.minimize(method="SLSQP"), timed
+   on a sample of steps and scaled up, with the largest difference of the results;
+2. the ratio against one numpy pass over the same input arrays (memory-bandwidth floor),
+   and against one vectorised evaluation of the balance residuals.
+
+Run:  PYTHONPATH=src .venv/bin/python benchmarks/bench_reconcile.py [n_steps] [n_sample]
+"""
+
+from __future__ import annotations
+
+import sys
+import time
+
+import numpy as np
+from scipy import optimize
+
+from kinetrace.reconcile import reconcile_cstr
+
+NU = np.array([[-1.0, 0.0], [1.0, -1.0], [0.0, 1.0], [-1.0, -1.0]])
+C_IN = np.array([1000.0, 0.0, 0.0, 1500.0])
+SIG_Q, SIG_CIN, SIG_COUT = 1e-5, np.array([10.0, 5.0, 5.0, 15.0]), np.array([8.0, 8.0, 8.0, 8.0])
+SIG = np.r_[SIG_Q, SIG_Q, SIG_CIN, SIG_COUT]
+
+
+def make_data(T, seed=0):
+    g = np.random.default_rng(seed)
+    qi = 1e-3 * (1 + 0.05 * g.standard_normal(T))
+    xi = np.array([0.4, 0.2]) * (1 + 0.05 * g.standard_normal((T, 2)))
+    cout = C_IN + xi @ NU.T / qi[:, None]
+    return (qi + SIG_Q * g.standard_normal(T), qi + SIG_Q * g.standard_normal(T),
+            C_IN + SIG_CIN * g.standard_normal((T, 4)), cout + SIG_COUT * g.standard_normal((T, 4)))
+
+
+def residual(w, xi):
+    qi, qo, ci, co = w[0], w[1], w[2:6], w[6:10]
+    return np.r_[qo * co - qi * ci - NU @ xi, qi - qo]
+
+
+def jac(w):
+    qi, qo, ci, co = w[0], w[1], w[2:6], w[6:10]
+    J = np.zeros((5, 12))
+    J[:4, 0], J[:4, 1], J[:4, 2:6], J[:4, 6:10] = -ci, co, -qi * np.eye(4), qo * np.eye(4)
+    J[4, 0], J[4, 1] = 1.0, -1.0
+    J[:4, 10:] = -NU
+    return J
+
+
+def slsqp_step(yt):
+    """Baseline: one step by SLSQP on the standardised problem (tight tolerance)."""
+    cons = {"type": "eq", "fun": lambda u: residual(yt + SIG * u[:10], u[10:]),
+            "jac": lambda u: jac(yt + SIG * u[:10]) * np.r_[SIG, 1.0, 1.0]}
+    sol = optimize.minimize(lambda u: u[:10] @ u[:10], np.r_[np.zeros(10), 0.4, 0.2],
+                            jac=lambda u: np.r_[2 * u[:10], 0.0, 0.0], constraints=[cons],
+                            method="SLSQP", options={"ftol": 1e-16, "maxiter": 500})
+    return yt + SIG * sol.x[:10], sol.x[10:]
+
+
+def main(T=1_000_000, n_sample=300, chunk=200_000):
+    qi, qo, ci, co = make_data(T)
+    kw = dict(sigma_q_in=SIG_Q, sigma_q_out=SIG_Q, sigma_c_in=SIG_CIN, sigma_c_out=SIG_COUT)
+
+    # floor (a): one numpy pass over all input arrays
+    t0 = time.perf_counter()
+    for a in (qi, qo, ci, co):
+        a.sum()
+    t_pass = time.perf_counter() - t0
+    # floor (b): one vectorised evaluation of the balance residuals
+    t0 = time.perf_counter()
+    _ = qo[:, None] * co - qi[:, None] * ci, qi - qo
+    t_resid = time.perf_counter() - t0
+
+    # kinetrace, in chunks to bound memory
+    sample = np.random.default_rng(1).choice(T, n_sample, replace=False)
+    keep_x, keep_xi = np.empty((n_sample, 10)), np.empty((n_sample, 2))
+    n_conv, iters = 0, []
+    t0 = time.perf_counter()
+    for s in range(0, T, chunk):
+        sl = slice(s, min(T, s + chunk))
+        r = reconcile_cstr(qi[sl], qo[sl], ci[sl], co[sl], NU, **kw)
+        n_conv += int(r.converged.sum())
+        iters.append(np.bincount(r.iterations, minlength=60))
+        inside = (sample >= sl.start) & (sample < sl.stop)
+        keep_x[inside] = r.x[sample[inside] - sl.start, :10]
+        keep_xi[inside] = r.extent[sample[inside] - sl.start]
+        del r
+    t_ours = time.perf_counter() - t0
+
+    # baseline: SLSQP per step on the sample, scaled up
+    t0 = time.perf_counter()
+    ref = [slsqp_step(np.r_[qi[t], qo[t], ci[t], co[t]]) for t in sample]
+    t_slsqp = (time.perf_counter() - t0) / n_sample * T
+    dx = max(np.max(np.abs(keep_x[k] - ref[k][0]) / SIG) for k in range(n_sample))
+    dxi = max(np.max(np.abs(keep_xi[k] - ref[k][1]) / np.abs(ref[k][1])) for k in range(n_sample))
+
+    it = np.sum(iters, axis=0)
+    print(f"steps: {T:,}   converged: {n_conv:,}   iterations per step: mean "
+          f"{np.dot(np.arange(it.size), it) / it.sum():.2f}, max {np.flatnonzero(it).max()}")
+    print(f"kinetrace reconcile_cstr:        {t_ours:9.2f} s  ({t_ours / T * 1e6:.2f} us/step)")
+    print(f"SLSQP per step (x{T // n_sample} from {n_sample} steps): {t_slsqp:9.1f} s  "
+          f"-> ratio {t_slsqp / t_ours:8.0f}x  (goal >= 300x)")
+    print(f"  max |difference| on the sample: x {dx:.2e} sd, extents {dxi:.2e} relative (goal 1e-8)")
+    print(f"one numpy pass over inputs:      {t_pass:9.4f} s  -> ratio {t_ours / t_pass:8.0f}x  (goal <= 20x)")
+    print(f"one balance-residual evaluation: {t_resid:9.4f} s  -> ratio {t_ours / t_resid:8.0f}x")
+
+
+if __name__ == "__main__":
+    args = [int(a) for a in sys.argv[1:]]
+    main(*args)
