@@ -46,6 +46,13 @@ def check_inputs(y, sigma, names):
     return y, np.array(sigma), status
 
 
+def _cols(a, idx):
+    """Columns ``idx`` of the last axis; a view when they are contiguous."""
+    if idx.size and idx[-1] - idx[0] + 1 == idx.size:
+        return a[..., idx[0]:idx[-1] + 1]
+    return a[..., idx]
+
+
 def group_patterns(status):
     """Distinct rows of ``status`` and the pattern number of every step."""
     n = status.shape[1]
@@ -70,7 +77,7 @@ def solve_patterns(y, sigma, status, A, Az, b, full_cov=False, groups=None, mini
     nz = Az.shape[2]
     b = np.zeros((1, m)) if b is None else (b[None] if np.ndim(b) == 1 else b)
 
-    out = {
+    out = {"x": np.full((T, n), np.nan), "z": np.full((T, nz), np.nan)} if minimal else {
         "x": np.full((T, n), np.nan), "var_x": np.full((T, n), np.nan),
         "var_adj": np.full((T, n), np.nan), "z": np.full((T, nz), np.nan),
         "var_z": np.full((T, nz), np.nan), "redundant": np.zeros((T, n), bool),
@@ -78,7 +85,7 @@ def solve_patterns(y, sigma, status, A, Az, b, full_cov=False, groups=None, mini
         "objective": np.zeros(T), "dof": np.zeros(T, int),
         "imbalance": np.zeros((T, m)), "imbalance_sd": np.zeros((T, m)),
     }
-    if full_cov:
+    if full_cov and not minimal:
         out["cov_x"] = np.full((T, n, n), np.nan)
         out["cov_z"] = np.full((T, nz, nz), np.nan)
 
@@ -92,9 +99,10 @@ def solve_patterns(y, sigma, status, A, Az, b, full_cov=False, groups=None, mini
         bk = _take(b, idx)
         yk = y[idx]
         if F.size:
-            bk = bk - (Ak[:, :, F] @ yk[:, F][:, :, None])[..., 0]
+            bk = bk - np.einsum("kmf,kf->km", np.broadcast_to(_cols(Ak, F), (yk.shape[0], m, F.size)),
+                                _cols(yk, F))
         Azk = np.concatenate([Ak[:, :, U], _take(Az, idx)], axis=2) if U.size else _take(Az, idx)
-        res = wls_kernel(yk[:, M], sigma[idx][:, M] ** 2, Ak[:, :, M], Azk, bk, full_cov, minimal)
+        res = wls_kernel(_cols(yk, M), _cols(sigma[idx], M) ** 2, _cols(Ak, M), Azk, bk, full_cov, minimal)
         nu = U.size
         if minimal:
             x = yk.copy()
