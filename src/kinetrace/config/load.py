@@ -17,7 +17,7 @@ from pydantic import ValidationError
 
 from ..chemistry import check_element_balance, parse_equation, parse_formula
 from ..errors import ChemistryError, ConfigError, KinetraceError, Problem, ProblemList
-from ..units import SI_UNITS, UnitError, check_kind, parse_quantity, parse_rate_constant
+from ..units import SI_UNITS, UnitError, parse_quantity, parse_rate_constant, tag_measure
 from .schema import ROLE_KIND, PlantConfig, Unit
 
 
@@ -214,7 +214,10 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
                 problems.add(f"{where}.unit", f"tag {t.tag!r}: a level is read in '%' of span, not {t.unit!r}")
         else:
             try:
-                check_kind(t.unit, kind)
+                measure = tag_measure(t.unit, kind)  # mass-based units allowed, converted at ingest
+                if measure in ("mass_flow", "mass_fraction") and not (t.density or unit.density):
+                    raise UnitError(f"unit {t.unit!r} is a {measure.replace('_', ' ')}; converting it needs a density "
+                                    "(density = '... kg/m3' on the tag or the unit)")
             except UnitError as exc:
                 problems.add(f"{where}.unit", f"tag {t.tag!r}: {exc}")
         if t.role.endswith("_conc"):
