@@ -67,6 +67,9 @@ class Segment:
         [K]
     volume_setpoint : float or None
         Level controller set point as a volume (None for an overflow unit). [m^3]
+    manual_outlet : float or None
+        Level controller in manual with this outlet flow (e.g. 0: outlet closed while the unit is
+        stopped); its integral term is held, and re-set for a bumpless return to auto. [m^3/s]
     """
 
     start: float
@@ -74,6 +77,7 @@ class Segment:
     feed_flow: float
     temperature_setpoint: float
     volume_setpoint: float | None = None
+    manual_outlet: float | None = None
 
 
 @dataclass(frozen=True)
@@ -269,11 +273,16 @@ def integrate_cstr(nu, kinetics: Kinetics, segments, feed: FeedProfile, *, initi
     grid = t0_grid + step * np.arange(n_total)
     states, temps, tsps, n_rhs = [], [], [], 0
 
+    previous_manual = False
     for seg, temp0 in zip(segments, t_start):
         q_in, t_sp, v_sp, ts = seg.feed_flow, seg.temperature_setpoint, seg.volume_setpoint, seg.start
         d_temp = temp0 - t_sp
+        manual = seg.manual_outlet if controlled else None
+        if controlled and previous_manual and manual is None:
+            y[i_int] = q_in - kc * (y[i_v] - v_sp)     # bumpless return to auto: outlet starts at the feed rate
+        previous_manual = manual is not None
 
-        def rhs(t, yy, q_in=q_in, t_sp=t_sp, v_sp=v_sp, ts=ts, d_temp=d_temp):
+        def rhs(t, yy, q_in=q_in, t_sp=t_sp, v_sp=v_sp, ts=ts, d_temp=d_temp, manual=manual):
             n = yy[:ns]
             vol = yy[i_v]
             conc = n / vol
@@ -281,7 +290,10 @@ def integrate_cstr(nu, kinetics: Kinetics, segments, feed: FeedProfile, *, initi
             r = kinetics.rates(conc, temp, math.exp(-kd * t))
             cin = feed.at(t)
             dy = np.empty_like(yy)
-            if controlled:
+            if manual is not None:
+                q_out = manual
+                dy[i_int] = 0.0
+            elif controlled:
                 err = vol - v_sp
                 q_out = kc * err + yy[i_int]
                 if q_out < 0.0:
@@ -316,9 +328,12 @@ def integrate_cstr(nu, kinetics: Kinetics, segments, feed: FeedProfile, *, initi
     vol = ys[:, i_v]
     feed_flow = np.concatenate([np.full(((grid >= s.start) & (grid < s.end)).sum(), s.feed_flow) for s in segments])
     if controlled:
-        vsp = np.concatenate([np.full(((grid >= s.start) & (grid < s.end)).sum(), s.volume_setpoint)
-                              for s in segments])
-        q_out = np.maximum(kc * (vol - vsp) + ys[:, i_int], 0.0)
+        def per_row(values):
+            return np.concatenate([np.full(((grid >= s.start) & (grid < s.end)).sum(), v)
+                                   for s, v in zip(segments, values)])
+        vsp = per_row([s.volume_setpoint for s in segments])
+        man = per_row([np.nan if s.manual_outlet is None else s.manual_outlet for s in segments])
+        q_out = np.where(np.isnan(man), np.maximum(kc * (vol - vsp) + ys[:, i_int], 0.0), man)
     else:
         q_out = feed_flow.copy()
     return CstrRun(t=grid, moles=ys[:, :ns], volume=vol, feed_flow=feed_flow, outlet_flow=q_out,

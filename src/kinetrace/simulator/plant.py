@@ -103,8 +103,9 @@ def volume_to_level(model, volume):
 def build_segments(model, plan, duration: float) -> list[Segment]:
     """Cut the run [0, duration) [s] into segments of constant feed rate and set points.
 
-    Schedule entries after the end are ignored; during the shutdown the feed is zero and
-    the temperature set point is the shutdown's.
+    Schedule entries after the end are ignored; during the shutdown the feed is zero, the
+    temperature set point is the shutdown's and a level controller is in manual with the outlet
+    closed (an overflow unit simply stops overflowing).
     """
     cuts = {0.0, float(duration)}
     cuts.update(s.at for s in plan.steps if 0.0 < s.at < duration)
@@ -123,9 +124,11 @@ def build_segments(model, plan, duration: float) -> list[Segment]:
         if level and lvl is None:
             raise KinetraceError(f"unit {model.id}: the first schedule entry needs a level set point [%]")
         sd = plan.shutdown
-        if sd and sd.start <= a < sd.end:
+        stopped = bool(sd and sd.start <= a < sd.end)
+        if stopped:
             flow, temp = 0.0, sd.temperature
-        segments.append(Segment(a, b, flow, temp, float(level_to_volume(model, lvl / 100.0)) if level else None))
+        segments.append(Segment(a, b, flow, temp, float(level_to_volume(model, lvl / 100.0)) if level else None,
+                                0.0 if (stopped and level) else None))
     return segments
 
 
