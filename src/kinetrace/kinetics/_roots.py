@@ -18,6 +18,8 @@ from collections.abc import Callable
 
 import numpy as np
 
+from kinetrace.errors import KinetraceError
+
 
 def bracketed_root(
     func: Callable[[np.ndarray], np.ndarray],
@@ -70,7 +72,7 @@ def bracketed_root(
     elif pick == "last":
         pos = change.shape[0] - 1 - np.argmax(change[::-1], axis=0)
     else:
-        raise ValueError(f"pick must be 'first' or 'last', got {pick!r}")
+        raise KinetraceError(f"pick must be 'first' or 'last', got {pick!r}")
     cols = np.arange(lo.size)
     a = grid[pos, cols]
     b = grid[pos + 1, cols]

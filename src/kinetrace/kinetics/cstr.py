@@ -20,7 +20,9 @@ with Da = -nu_A k tau. Every other case is solved by a vectorised bracketed
 root search on xi (grid scan and bisection). When the grid finds more than
 one solution (multiple steady states, possible for self-inhibited saturating
 laws with exponent 2 or autocatalytic orders) ``branch`` picks the
-high- or low-conversion one and ``multiple`` flags it.
+high- or low-conversion one and ``multiple`` flags it. The search grid has
+65 points over the feasible extent range, so two solutions closer together
+than about 1/64 of that range may be seen as one.
 
 Caution
 -------
