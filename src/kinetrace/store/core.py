@@ -1,0 +1,260 @@
+"""The :class:`Store`: opening, one transaction per run, and read methods."""
+
+from __future__ import annotations
+
+import hashlib
+import traceback
+from contextlib import contextmanager
+from pathlib import Path
+from typing import Iterator
+
+import pandas as pd
+from sqlalchemy import Engine, create_engine, event, insert, select, update
+from sqlalchemy.exc import ArgumentError, OperationalError
+from sqlalchemy.exc import NoSuchModuleError
+
+from . import reader
+from .schema import RESULT_TABLES, SCHEMA_VERSION, StoreError, metadata, runs, store_meta, to_utc
+from .writer import RunWriter
+
+SUPPORTED_DIALECTS = ("sqlite", "postgresql")
+
+
+def fingerprint(source) -> str:
+    """SHA-256 of a configuration, for ``runs.config_fingerprint``.
+
+    Parameters
+    ----------
+    source : bytes, str or Path
+        Raw bytes, a text, or the path of a file (read as bytes).
+
+    Returns
+    -------
+    str
+        ``"sha256:"`` followed by 64 hexadecimal digits.
+
+    >>> fingerprint(b"abc")[:23]
+    'sha256:ba7816bf8f01cfea'
+    """
+    if isinstance(source, Path):
+        data = source.read_bytes()
+    elif isinstance(source, str):
+        data = source.encode("utf-8")
+    elif isinstance(source, (bytes, bytearray)):
+        data = bytes(source)
+    else:
+        raise StoreError(f"fingerprint: expected bytes, str or Path, got {type(source).__name__}")
+    return "sha256:" + hashlib.sha256(data).hexdigest()
+
+
+def _sqlite_pragmas(dbapi_conn, _record) -> None:
+    cur = dbapi_conn.cursor()
+    cur.execute("PRAGMA foreign_keys = ON")
+    cur.execute("PRAGMA busy_timeout = 30000")
+    cur.execute("PRAGMA journal_mode = WAL")
+    cur.close()
+
+
+def open_store(url: str, *, create: bool = True, echo: bool = False) -> "Store":
+    """Open (and by default create) a results store.
+
+    Parameters
+    ----------
+    url : str
+        SQLAlchemy URL: ``sqlite:///path/results.sqlite`` (default back end) or
+        ``postgresql+psycopg://user@host:port/db``. A plain ``postgresql://`` URL is
+        taken to mean psycopg 3.
+    create : bool
+        Create missing tables (existing tables are left as they are).
+    echo : bool
+        Log SQL statements (debugging).
+
+    Returns
+    -------
+    Store
+
+    >>> store = open_store("sqlite://")
+    >>> store.watermark("R-210") is None
+    True
+    """
+    if not isinstance(url, str) or not url:
+        raise StoreError(f"store url must be a non-empty string, got {url!r}")
+    if url.startswith("postgresql://"):
+        url = "postgresql+psycopg://" + url[len("postgresql://"):]
+    try:
+        engine = create_engine(url, echo=echo)
+    except (ArgumentError, NoSuchModuleError) as exc:
+        raise StoreError(f"store url {url!r} cannot be used: {exc}") from None
+    if engine.dialect.name not in SUPPORTED_DIALECTS:
+        raise StoreError(f"store url {url!r}: back end {engine.dialect.name!r} is not supported; "
+                         f"use one of {list(SUPPORTED_DIALECTS)}")
+    if engine.dialect.name == "sqlite":
+        event.listen(engine, "connect", _sqlite_pragmas)
+    store = Store(engine)
+    try:
+        if create:
+            store.create()
+        store.check_version()
+    except OperationalError as exc:
+        raise StoreError(f"store {engine.url.render_as_string(hide_password=True)}: cannot open: "
+                         f"{exc.orig}") from None
+    return store
+
+
+class Store:
+    """Results store on one database; see the package docstring for the schema.
+
+    Use :func:`open_store` to get one. Writes go through :meth:`write_run`; reads
+    return pandas DataFrames with tz-aware UTC time stamps.
+    """
+
+    def __init__(self, engine: Engine):
+        self.engine = engine
+
+    def __repr__(self) -> str:
+        return f"Store({self.engine.url.render_as_string(hide_password=True)!r})"
+
+    @property
+    def dialect(self) -> str:
+        """Back end name, ``"sqlite"`` or ``"postgresql"``."""
+        return self.engine.dialect.name
+
+    def create(self) -> None:
+        """Create missing tables and record the schema version."""
+        with self.engine.begin() as conn:
+            metadata.create_all(conn, checkfirst=True)
+            have = conn.execute(select(store_meta.c.value).where(store_meta.c.key == "schema_version")).scalar()
+            if have is None:
+                conn.execute(insert(store_meta).values(key="schema_version", value=str(SCHEMA_VERSION)))
+
+    def check_version(self) -> None:
+        """Refuse a store written with another table layout."""
+        with self.engine.connect() as conn:
+            have = conn.execute(select(store_meta.c.value).where(store_meta.c.key == "schema_version")).scalar()
+        if have is not None and have != str(SCHEMA_VERSION):
+            raise StoreError(f"store {self!r} has schema version {have}; this kinetrace reads version "
+                             f"{SCHEMA_VERSION}")
+
+    def close(self) -> None:
+        """Release the connections."""
+        self.engine.dispose()
+
+    # -- writing --------------------------------------------------------------------------
+    @contextmanager
+    def write_run(self, window, *, config_fingerprint: str, software_version: str | None = None,
+                  started=None) -> Iterator[RunWriter]:
+        """One run: a context manager whose body's writes are ONE transaction.
+
+        The run record is first committed with status ``running``; the results and the
+        final status ``complete`` are committed together when the block ends. An
+        exception rolls every result back (the previous results stay as they were) and
+        marks the run ``failed`` with the error; a process killed in the block leaves
+        the run ``running`` with no finish time, and the results untouched.
+
+        Parameters
+        ----------
+        window : tuple
+            ``(start, end)`` of the data processed, half-open, tz-aware. [UTC]
+        config_fingerprint : str
+            Fingerprint of the configuration used (see :func:`fingerprint`).
+        software_version : str, optional
+            Default: ``kinetrace.__version__``.
+        started : Timestamp, optional
+            Wall-clock start of the run; default now. [UTC]
+
+        Yields
+        ------
+        RunWriter
+
+        >>> store = open_store("sqlite://")
+        >>> with store.write_run(("2026-11-30T00:00Z", "2026-12-01T00:00Z"),
+        ...                      config_fingerprint=fingerprint(b"demo")) as run:
+        ...     _ = run.set_watermark("R-210", "2026-11-30T23:00Z")
+        >>> store.watermark("R-210")
+        Timestamp('2026-11-30 23:00:00+0000', tz='UTC')
+        """
+        from .. import __version__
+
+        if not isinstance(window, (tuple, list)) or len(window) != 2:
+            raise StoreError(f"run window must be a (start, end) pair, got {window!r}")
+        start, end = to_utc(window[0], "run window start"), to_utc(window[1], "run window end")
+        if end <= start:
+            raise StoreError(f"run window end {end} is not after its start {start}")
+        if not isinstance(config_fingerprint, str) or not config_fingerprint:
+            raise StoreError("config_fingerprint must be a non-empty string (see kinetrace.store.fingerprint)")
+        started = pd.Timestamp.now(tz="UTC") if started is None else to_utc(started, "started")
+        with self.engine.begin() as conn:
+            run_id = conn.execute(insert(runs).values(
+                started=started, status="running", config_fingerprint=config_fingerprint,
+                window_start=start, window_end=end,
+                software_version=software_version or __version__).returning(runs.c.run_id)).scalar_one()
+        try:
+            with self.engine.begin() as conn:
+                writer = RunWriter(conn, run_id, start, end)
+                yield writer
+                conn.execute(update(runs).where(runs.c.run_id == run_id).values(
+                    status="complete", finished=pd.Timestamp.now(tz="UTC"),
+                    message=_summary(writer.rows_written)))
+        except BaseException as exc:
+            text = "".join(traceback.format_exception_only(type(exc), exc)).strip()
+            with self.engine.begin() as conn:
+                conn.execute(update(runs).where(runs.c.run_id == run_id).values(
+                    status="failed", finished=pd.Timestamp.now(tz="UTC"), message=text[:4000]))
+            raise
+
+    # -- reading --------------------------------------------------------------------------
+    def _read(self, fn, *args, **kw):
+        with self.engine.connect() as conn:
+            return fn(conn, *args, **kw)
+
+    def series(self, unit: str, variables=None, start=None, end=None, *, layout: str = "wide") -> pd.DataFrame:
+        """Time series of one unit; see :func:`kinetrace.store.reader.read_series`."""
+        return self._read(reader.read_series, unit, variables, start, end, layout=layout)
+
+    def series_catalog(self, unit: str | None = None) -> pd.DataFrame:
+        """Stored variables and their units of measure."""
+        return self._read(reader.read_series_catalog, unit)
+
+    def daily(self, units=None, first_day=None, last_day=None) -> pd.DataFrame:
+        """Daily production rows; see :func:`kinetrace.store.reader.read_daily`."""
+        return self._read(reader.read_daily, units, first_day, last_day)
+
+    def alarms(self, units=None, *, state: str | None = None, since=None, until=None) -> pd.DataFrame:
+        """Alarms; see :func:`kinetrace.store.reader.read_alarms`."""
+        return self._read(reader.read_alarms, units, state=state, since=since, until=until)
+
+    def parameters(self, units=None, *, as_of=None, latest: bool = True) -> pd.DataFrame:
+        """Fitted parameters; see :func:`kinetrace.store.reader.read_parameters`."""
+        return self._read(reader.read_parameters, units, as_of=as_of, latest=latest)
+
+    def forecasts(self, units=None, *, as_of=None, latest: bool = True) -> pd.DataFrame:
+        """Forecasts; see :func:`kinetrace.store.reader.read_forecasts`."""
+        return self._read(reader.read_forecasts, units, as_of=as_of, latest=latest)
+
+    def whatif(self, units=None, *, as_of=None, latest: bool = True) -> pd.DataFrame:
+        """What-if settings; see :func:`kinetrace.store.reader.read_whatif`."""
+        return self._read(reader.read_whatif, units, as_of=as_of, latest=latest)
+
+    def quality(self, units=None, start=None, end=None) -> pd.DataFrame:
+        """Data-quality counts; see :func:`kinetrace.store.reader.read_quality`."""
+        return self._read(reader.read_quality, units, start, end)
+
+    def watermark(self, unit: str) -> pd.Timestamp | None:
+        """Last time stamp processed for a unit, ``None`` if never run. [UTC]"""
+        return self._read(reader.read_watermark, unit)
+
+    def watermarks(self) -> pd.DataFrame:
+        """Watermarks of every unit."""
+        return self._read(reader.read_watermarks)
+
+    def runs(self, status: str | None = None) -> pd.DataFrame:
+        """Run records, oldest first."""
+        return self._read(reader.read_runs, status)
+
+    def dump(self, tables=RESULT_TABLES) -> dict[str, pd.DataFrame]:
+        """Every row of the result tables (by name), ordered by primary key."""
+        return {name: self._read(reader.read_table, metadata.tables[name]) for name in tables}
+
+
+def _summary(counts: dict[str, int]) -> str:
+    return ", ".join(f"{k}: {v}" for k, v in sorted(counts.items())) or "no rows written"
