@@ -74,6 +74,12 @@ def to_float(values: pa.Array, decimal: str = ".") -> tuple[np.ndarray, np.ndarr
     return num, present & np.isnan(num)
 
 
+def subset_parsed(parsed, rows: np.ndarray):
+    """The result of :meth:`Collector.parse_times` for a subset of its rows."""
+    utc, status, second, uniq, codes = parsed
+    return utc[rows], status[rows], second[rows], uniq, (codes[rows] if codes is not None else None)
+
+
 def _codes(arr: pa.Array) -> tuple[np.ndarray, list]:
     d = arr if pa.types.is_dictionary(arr.type) else pc.dictionary_encode(arr)
     if isinstance(d, pa.ChunkedArray):

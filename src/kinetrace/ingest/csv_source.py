@@ -28,12 +28,14 @@ from pathlib import Path
 
 import numpy as np
 import pyarrow as pa
+import pint
 import pyarrow.csv as pcsv
 
 from ..config.schema import Source, Tag
 from ..errors import IngestError, Problem
-from ..units import UnitError, _units, tag_unit_text
-from .collect import Collector
+from ..units import UnitError, tag_unit_text
+from .collect import Collector, subset_parsed
+from .conversion import _linear
 
 #: Bytes read per block (whole lines are completed after it).
 BLOCK_BYTES = 8 << 20
@@ -103,8 +105,9 @@ def _check_units(header: list[str], units: list[str], tags: dict[str, Tag], wher
         if t is None or not u.strip():
             continue
         try:
-            same = _units(tag_unit_text(u)) == _units(tag_unit_text(t.unit))
-        except UnitError:
+            a, b = _linear(tag_unit_text(u), tag_unit_text(t.unit))
+            same = abs(a - 1.0) < 1e-12 and abs(b) < 1e-9
+        except (UnitError, pint.errors.DimensionalityError):
             same = False
         if not same:
             problems.append(Problem(f"{where}:units row", f"tag {t.tag!r}: the file says {u.strip()!r}, "
@@ -138,7 +141,7 @@ def read_csv_file(path: Path, source: Source, collector: Collector, tags: dict[s
         disagrees with the config.
     """
     name = str(path)
-    counts = {"lines": 0, "header_lines": 0, "blank_lines": 0, "malformed_lines": 0}
+    counts = {"lines": 0, "header_lines": 0, "blank_lines": 0, "malformed_lines": 0, "empty_cells": 0}
     try:
         with _open(path) as f:
             return _read_open(f, name, source, collector, tags, block_bytes, counts)
@@ -214,8 +217,16 @@ def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
             for h in header:
                 if h == c.timestamp:
                     continue
-                collector.add(h, ts, table.column(h).combine_chunks(), None, locate=locate,
-                              decimal=source.decimal, parsed=parsed)
+                col = table.column(h).combine_chunks()
+                if col.null_count:
+                    # an empty cell of a wide export is no reading (that tag was not sampled then)
+                    counts["empty_cells"] += col.null_count
+                    rows = np.flatnonzero(col.is_valid().to_numpy(zero_copy_only=False))
+                    collector.add(h, ts.take(pa.array(rows)), col.take(pa.array(rows)), None,
+                                  locate=lambda r, _rows=rows: locate(_rows[np.asarray(r, dtype=np.int64)]),
+                                  decimal=source.decimal, parsed=subset_parsed(parsed, rows))
+                else:
+                    collector.add(h, ts, col, None, locate=locate, decimal=source.decimal, parsed=parsed)
         next_line += n_lines
     counts["lines"] = next_line - 1
     if not saw_data:
@@ -225,7 +236,7 @@ def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
 
 def read_csv_source(path: Path, source: Source, collector: Collector, tags: dict[str, Tag]) -> dict:
     """Read a CSV source (one file, or a folder of files) into ``collector``; returns summed line counts."""
-    total = {"files": 0, "lines": 0, "header_lines": 0, "blank_lines": 0, "malformed_lines": 0}
+    total = {"files": 0, "lines": 0, "header_lines": 0, "blank_lines": 0, "malformed_lines": 0, "empty_cells": 0}
     problems: list[Problem] = []
     for p in list_files(path, source.file_pattern):
         try:

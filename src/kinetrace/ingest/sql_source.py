@@ -29,6 +29,9 @@ from ..errors import ConfigError, IngestError, Problem
 from .collect import Collector
 from .timestamps import NAT
 
+#: Stream PostgreSQL (psycopg 3) reads with COPY ... TO STDOUT; False uses the generic streamed SELECT.
+USE_COPY = True
+
 
 def source_url(source: Source, base_dir: Path | None = None) -> tuple[sa.URL, str]:
     """SQLAlchemy URL of a SQL source and a name for messages that reveals no secret.
@@ -135,7 +138,7 @@ def read_sql_source(source: Source, collector: Collector, tags: list[str], since
     counts = {"rows": 0, "chunks": 0}
     try:
         with engine.connect() as conn:
-            if conn.dialect.name == "postgresql" and conn.dialect.driver == "psycopg":
+            if USE_COPY and conn.dialect.name == "postgresql" and conn.dialect.driver == "psycopg":
                 _copy_postgres(conn, stmt, params, collector, counts)
             else:
                 res = conn.execution_options(stream_results=True, max_row_buffer=source.chunk_rows).execute(stmt, params)
