@@ -139,3 +139,29 @@ def test_window_means_from_detected_windows():
     assert means["T"].iloc[0] == pytest.approx(340.0, abs=0.05)
     assert means["T"].iloc[-1] == pytest.approx(350.0, abs=0.05)
     assert (means["n_samples"] >= 30).all()
+
+
+def test_reversible_fit_with_law_params_and_negative_rates():
+    # net rates change sign across equilibrium; absolute residuals keep every point
+    # (log residuals must drop the negative ones, and count them)
+    from kinetrace.kinetics.ratelaws import rate
+
+    t = np.repeat([330.0, 340.0, 350.0, 360.0], 5)
+    ca = np.tile([100.0, 300.0, 600.0, 900.0, 1200.0], 4)
+    cc = np.tile([800.0, 600.0, 300.0, 200.0, 50.0], 4)
+    law = dict(orders={"A": 1}, reverse_orders={"C": 1}, equilibrium_constant=5.0,
+               reaction_enthalpy=-30e3, reference_temperature=345.0)  # van 't Hoff T_ref
+    k_true = at_temperature(0.004, t, 60e3, 345.0)
+    r = rate("reversible", {"A": ca, "C": cc}, k_true, temperature=t, **law)
+    r = r * np.exp(0.02 * np.random.default_rng(0).normal(size=r.size))
+    assert (r < 0).any()
+    fit = fit_rate_law(r, {"A": ca, "C": cc}, t, "reversible", reference_temperature=340.0,
+                       law_params=law, residual="absolute", sigma=0.02 * np.abs(r))
+    assert fit.n == 20
+    k340 = at_temperature(0.004, 340.0, 60e3, 345.0)  # true k at the fit's T_ref
+    lo, hi = fit.ci95["k_ref"]
+    assert lo < k340 < hi
+    lo, hi = fit.ci95["activation_energy"]
+    assert lo < 60e3 < hi
+    fit_log = fit_rate_law(r, {"A": ca, "C": cc}, t, "reversible", reference_temperature=340.0, law_params=law)
+    assert fit_log.n_excluded == int((r <= 0).sum())

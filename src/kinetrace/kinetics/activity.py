@@ -22,6 +22,7 @@ References
 
 from __future__ import annotations
 
+from collections.abc import Mapping
 from dataclasses import dataclass
 from typing import Any
 
@@ -51,6 +52,7 @@ def apparent_reference_rate_constant(
     *,
     activation_energy: float,
     reference_temperature: float,
+    law_params: Mapping[str, Any] | None = None,
     **params,
 ):
     """Apparent rate constant from measured rates, moved to the reference temperature.
@@ -71,6 +73,10 @@ def apparent_reference_rate_constant(
         Ea. [J/mol]
     reference_temperature : float
         T_ref. [K]
+    law_params : Mapping, optional
+        Rate-law parameters, merged with ``**params``; needed for names that
+        clash with this function's own arguments (the van 't Hoff
+        ``reference_temperature`` of ``reversible``).
     **params
         Rate-law parameters.
 
@@ -89,6 +95,7 @@ def apparent_reference_rate_constant(
     ...       activation_energy=0.0, reference_temperature=340.0, orders={"A": 1}), 6)
     0.005
     """
+    params = {**(law_params or {}), **params}
     k = apparent_rate_constant(method, rate, conc, temperature=temperature, **params)
     return normalise_to_reference(k, temperature, activation_energy, reference_temperature)
 

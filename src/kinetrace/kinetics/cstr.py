@@ -415,6 +415,7 @@ def temperature_for_conversion(
     safe_range,
     key,
     stoichiometry,
+    law_params: Mapping[str, Any] | None = None,
     **params,
 ):
     """Lowest temperature inside ``safe_range`` that gives a target conversion.
@@ -441,6 +442,10 @@ def temperature_for_conversion(
     safe_range : tuple of float
         (T_min, T_max) from the unit's configuration. [K] Required: the search
         never leaves it.
+    law_params : Mapping, optional
+        Rate-law parameters, merged with ``**params``; needed for names that
+        clash with this function's own arguments (the van 't Hoff
+        ``reference_temperature`` of ``reversible``).
     key, stoichiometry, **params
         As in :func:`solve_cstr`.
 
@@ -472,6 +477,7 @@ def temperature_for_conversion(
     ...       orders={"A": 1}))
     True
     """
+    params = {**(law_params or {}), **params}
     try:
         t_min, t_max = (float(v) for v in safe_range)
     except (TypeError, ValueError):

@@ -148,6 +148,7 @@ def fit_rate_law(
     initial: Mapping[str, float] | None = None,
     residual: str = "log",
     sigma=None,
+    law_params: Mapping[str, Any] | None = None,
     **params,
 ) -> KineticFit:
     """Fit k_ref, Ea (and adsorption constants) of a rate law to steady-state points.
@@ -174,6 +175,10 @@ def fit_rate_law(
         Residual definition.
     sigma : float or array_like, optional
         Standard deviation of each rate for ``absolute``. [mol/(m^3 s)]
+    law_params : Mapping, optional
+        Rate-law parameters, merged with ``**params``; needed for names that
+        clash with this function's own arguments (the van 't Hoff
+        ``reference_temperature`` of ``reversible``).
     **params
         Fixed rate-law parameters (orders, other adsorption constants, ...).
 
@@ -201,6 +206,7 @@ def fit_rate_law(
     >>> round(fit.estimates["k_ref"], 6), round(fit.estimates["activation_energy"])
     (0.01, 60000)
     """
+    params = {**(law_params or {}), **params}
     if residual not in ("log", "absolute"):
         raise KinetraceError(f"residual must be 'log' or 'absolute', got {residual!r}")
     t_ref = float(reference_temperature)

@@ -177,6 +177,7 @@ def k_ref_from_steady_balance(
     reference_temperature: float,
     key_coefficient: float = -1.0,
     other_conc: Mapping[str, Any] | None = None,
+    law_params: Mapping[str, Any] | None = None,
     **params,
 ):
     """Apparent k at T_ref from one steady-state balance on the key reactant.
@@ -205,6 +206,10 @@ def k_ref_from_steady_balance(
         Stoichiometric coefficient of the key reactant (negative). [-]
     other_conc : Mapping[str, array_like], optional
         Concentrations of the other species in the rate law (taken as exact). [mol/m^3]
+    law_params : Mapping, optional
+        Rate-law parameters, merged with ``**params``; needed for names that
+        clash with this function's own arguments (the van 't Hoff
+        ``reference_temperature`` of ``reversible``).
     **params
         Rate-law parameters.
 
@@ -224,6 +229,7 @@ def k_ref_from_steady_balance(
     >>> round(float(k), 6)
     0.002
     """
+    params = {**(law_params or {}), **params}
     rate = as_float_array(flow) * (as_float_array(c_in) - as_float_array(c_out)) / (
         as_float_array(volume) * abs(float(key_coefficient))
     )
