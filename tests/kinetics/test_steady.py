@@ -123,3 +123,15 @@ def test_errors():
     with pytest.raises(KinetraceError, match="l1"):
         cao_rhinehart_ratio(np.ones(10), l1=1.5)
     assert steady_windows(pd.Series([True, True, False]), 2)["n_samples"].tolist() == [2]
+
+
+def test_max_gap_bridges_isolated_false_alarms_only():
+    y = _first_order_step(seed=2)
+    plain = detect_steady(y, min_duration=30)
+    bridged = detect_steady(y, min_duration=30, max_gap=5)
+    assert len(bridged.windows) <= len(plain.windows)
+    assert bridged.mask.sum() >= plain.mask.sum()
+    assert not bridged.mask.iloc[208:260].any()  # a real transient is far longer than 5 samples
+    y_nan = y.copy()
+    y_nan[120:122] = np.nan
+    assert not detect_steady(y_nan, min_duration=1, max_gap=5).mask.iloc[120:122].any()

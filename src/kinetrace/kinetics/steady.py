@@ -356,6 +356,16 @@ def steady_windows(mask, min_duration=1) -> pd.DataFrame:
     return pd.DataFrame(rows, columns=["start", "end", "n_samples", "start_pos", "stop_pos"])
 
 
+def _bridge(unit: pd.Series, finite: np.ndarray, max_gap: int) -> pd.Series:
+    """Fill interior runs of False no longer than ``max_gap`` (all samples finite)."""
+    flags = unit.to_numpy(dtype=bool).copy()
+    for start, stop in _finite_runs(~flags):
+        interior = start > 0 and stop < flags.size
+        if interior and stop - start <= max_gap and finite[start:stop].all():
+            flags[start:stop] = True
+    return pd.Series(flags, index=unit.index)
+
+
 def detect_steady(
     data,
     method: str = "cao_rhinehart",
@@ -363,6 +373,7 @@ def detect_steady(
     min_duration=1,
     critical_value: float | None = None,
     key_variables: list[str] | None = None,
+    max_gap: int = 0,
     **params: Any,
 ) -> SteadyStateResult:
     """Steady-state windows of a unit from its key process variables.
@@ -384,6 +395,10 @@ def detect_steady(
         (e.g. 1.73) or lower ``min_duration`` if windows come out fragmented.
     key_variables : list of str, optional
         Columns that must all be steady. Default: all columns.
+    max_gap : int
+        Runs of at most this many "transient" samples between two steady runs
+        are taken as steady (bridges isolated false alarms; samples where a
+        key variable is NaN are never bridged). Default 0 (off). [samples]
     **params
         ``cao_rhinehart``: l1, l2, l3, warmup. ``drift_variance``: window
         [samples], alpha, max_drift [unit of each variable, scalar or
@@ -441,6 +456,8 @@ def detect_steady(
     frame = frame.astype(float)
     stat, flags, crit = runner(frame, critical_value, params)
     unit = flags.all(axis=1)
+    if max_gap > 0:
+        unit = _bridge(unit, frame.notna().all(axis=1).to_numpy(), int(max_gap))
     windows = steady_windows(unit, min_duration)
     final = np.zeros(len(frame), dtype=bool)
     for start, stop in zip(windows["start_pos"], windows["stop_pos"]):
