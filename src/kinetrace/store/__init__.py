@@ -55,9 +55,9 @@ daily_production    (unit_id, day); production_kg, target_kg,           the day 
                     hours_with_data, run_id
 parameters          (unit_id, as_of, name); value, std_error, ci_low,   as_of in (start, end]
                     ci_high, ci_level, unit_of_measure, method, run_id
-alarms              alarm_id; unique (unit_id, kind, variable,          detected in [start, end); earlier
-                    detected); onset, magnitude, magnitude_unit,        alarms are updated by their key
-                    evidence, state (open / closed), closed, run_id
+alarms              (unit_id, kind, variable, detected); onset,         detected in [start, end); earlier
+                    magnitude, magnitude_unit, evidence, state          alarms are updated by their key
+                    (open / closed), closed, run_id
 data_quality        (unit_id, tag, period_start, measure);              period_start in [start, end)
                     period_end, count, run_id
 forecasts           (unit_id, as_of); activity_now, activity_needed,    as_of in (start, end]
@@ -79,14 +79,15 @@ The same table in markdown:
 | `series_values` | `key_id`, `ts` | `value`, `run_id` | `ts` in [start, end) |
 | `daily_production` | `unit_id`, `day` | `production_kg`, `target_kg`, `gap_kg`, `gap_feed_kg`, `gap_conversion_kg`, `gap_downtime_kg`, `gap_data_kg`, `hours_with_data`, `run_id` | day overlaps the window |
 | `parameters` | `unit_id`, `as_of`, `name` | `value`, `std_error`, `ci_low`, `ci_high`, `ci_level`, `unit_of_measure`, `method`, `run_id` | `as_of` in (start, end] |
-| `alarms` | `alarm_id` (unique `unit_id`, `kind`, `variable`, `detected`) | `onset`, `magnitude`, `magnitude_unit`, `evidence`, `state`, `closed`, `run_id` | `detected` in [start, end) |
+| `alarms` | `unit_id`, `kind`, `variable`, `detected` | `onset`, `magnitude`, `magnitude_unit`, `evidence`, `state`, `closed`, `run_id` | `detected` in [start, end) |
 | `data_quality` | `unit_id`, `tag`, `period_start`, `measure` | `period_end`, `count`, `run_id` | `period_start` in [start, end) |
 | `forecasts` | `unit_id`, `as_of` | `activity_now`, `activity_needed`, `miss_earliest`, `miss_expected`, `miss_latest`, `statement`, `run_id` | `as_of` in (start, end] |
 | `whatif` | `unit_id`, `as_of`, `lever` | `current_value`, `proposed_value`, `safe_low`, `safe_high`, `unit_of_measure`, `restores_target`, `note`, `run_id` | `as_of` in (start, end] |
 | `watermarks` | `unit_id` | `last_ts`, `run_id` | moves forward only |
 | `store_meta` | `key` | `value` | never |
 
-Masses are kg per day; gap = target - production (positive: shortfall) and equals
+Keys are natural (no surrogate ids in result tables, except ``series_keys``, which
+is never deleted from), so a re-run of a window reproduces the same rows. Masses are kg per day; gap = target - production (positive: shortfall) and equals
 the sum of its four parts exactly (checked on write). Every result row carries the
 ``run_id`` that wrote it, so a number in the report traces to a row and a run.
 

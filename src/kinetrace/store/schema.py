@@ -202,19 +202,17 @@ parameters = Table(
 
 alarms = Table(
     "alarms", metadata,
-    Column("alarm_id", Integer, primary_key=True, autoincrement=True),
-    Column("unit_id", String(64), nullable=False),
-    Column("kind", String(64), nullable=False),
-    Column("variable", String(128), nullable=False),
+    Column("unit_id", String(64), primary_key=True),
+    Column("kind", String(64), primary_key=True),
+    Column("variable", String(128), primary_key=True),
+    Column("detected", UtcTime, primary_key=True),
     Column("onset", UtcTime),
-    Column("detected", UtcTime, nullable=False),
     Column("magnitude", Double),
     Column("magnitude_unit", String(64), nullable=False, default=""),
     Column("evidence", Text, nullable=False, default=""),
     Column("state", String(8), nullable=False),
     Column("closed", UtcTime),
     Column("run_id", Integer, ForeignKey("runs.run_id"), nullable=False),
-    UniqueConstraint("unit_id", "kind", "variable", "detected", name="alarms_natural_key"),
     CheckConstraint("state IN ('open', 'closed')", name="alarms_state"),
 )
 Index("alarms_unit_detected", alarms.c.unit_id, alarms.c.detected)
