@@ -291,7 +291,13 @@ def _bad_time_text(uniq, code, timezone, fate=BAD_TIME) -> str:
                 "set source.dst_missing = 'shift' to read it with the offset before the change")
     if text is None or (isinstance(text, str) and not text.strip()):
         return "time stamp is empty"
-    if timezone is None and not any(c in text[10:] for c in "Zz+-"):
+    try:
+        import pandas as pd
+
+        pd.to_datetime(text, format="ISO8601")
+    except (ValueError, TypeError):
+        return f"time stamp {text!r} is not ISO 8601 (e.g. 2026-09-01T06:00:00Z)"
+    if timezone is None:
         return (f"time stamp {text!r} has no UTC offset and source.timezone is not set "
                 "(give ISO 8601 with 'Z' or an offset, or declare the IANA zone of local time)")
     return f"time stamp {text!r} is not ISO 8601 (e.g. 2026-09-01T06:00:00Z)"

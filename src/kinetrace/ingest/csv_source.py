@@ -130,6 +130,20 @@ class _Lines:
         return [f"{self.file}:{self.first + int(self._pos[int(r)])}" for r in rows]
 
 
+def _drop_blank_rows(table: pa.Table, locate, counts: dict):
+    """Remove rows whose fields are all empty (blank lines), counting them."""
+    if table.num_rows == 0:
+        return table, locate
+    empty = np.ones(table.num_rows, bool)
+    for col in table.columns:
+        empty &= col.is_null().to_numpy(zero_copy_only=False)
+        if not empty.any():
+            return table, locate
+    counts["blank_lines"] += int(empty.sum())
+    rows = np.flatnonzero(~empty)
+    return table.take(pa.array(rows)), (lambda r: locate(rows[np.asarray(r, dtype=np.int64)]))
+
+
 def read_csv_file(path: Path, source: Source, collector: Collector, tags: dict[str, Tag],
                   block_bytes: int = BLOCK_BYTES) -> dict:
     """Read one CSV file into ``collector``; returns line counts of the file.
@@ -204,6 +218,7 @@ def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
             raise IngestError(name, [Problem(f"{name}:{next_line}-{next_line + n_lines - 1}",
                                              f"cannot parse as CSV: {exc}")]) from None
         locate = _Lines(name, next_line, table.num_rows, invalid)
+        table, locate = _drop_blank_rows(table, locate, counts)
         if table.num_rows:
             saw_data = True
         if layout == "long":

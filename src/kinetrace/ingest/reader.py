@@ -187,6 +187,7 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     if first == NAT or problems:
         if first == NAT and not problems:
             problems.append(Problem(f"unit {u.id}", f"no usable readings of any of its tags for {_window_text(since_ns, until_ns)}"))
+            problems += _refusals(col, per_tag)
         raise IngestError(_source_name(cfg), problems + [Problem(w, m) for w, m in col.notes[:20]])
     edges = align.grid_edges(first, last, grid)
     if until_ns != NAT and edges[-1] > until_ns and (until_ns - edges[0]) % int(grid * 1e9) == 0:
@@ -249,6 +250,21 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
                     flagged=flagged_df, details=details, notes=notes, source_report=report, grid=grid)
     check_unit_data(data)
     return data
+
+
+def _refusals(col: Collector, per_tag) -> list[Problem]:
+    """Why each tag's readings were refused: counts by fate and the first located message."""
+    out = []
+    for i, name in enumerate(col.names):
+        fate = per_tag[i][2]
+        if fate.size == 0:
+            continue
+        counts = np.bincount(fate, minlength=N_FATES)
+        text = ", ".join(f"{int(counts[k])} {FATE_NAMES[k]}" for k in range(1, N_FATES) if counts[k])
+        first = next((d for d in col.details if d.tag == name), None)
+        more = f" (first: {first.where}: {first.message})" if first else ""
+        out.append(Problem(name, f"all {fate.size} readings refused: {text}{more}"))
+    return out
 
 
 def _volume(u: Unit, model: UnitModel, values: pd.DataFrame, valid: pd.DataFrame) -> pd.Series:
