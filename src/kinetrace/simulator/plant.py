@@ -60,7 +60,7 @@ def feed_profile(model, plan, duration: float, seed: int) -> FeedProfile:
 
     Each species with a non-zero feed gets its own Ornstein-Uhlenbeck deviation x(t),
     stationary std ``plan.feed_wander_sigma`` and correlation time ``plan.feed_wander_time``,
-    sampled exactly at knots ``plan.feed_knot_spacing`` apart and joined linearly.
+    sampled exactly at knots ``plan.feed_knot_spacing`` apart and joined by a cubic spline.
 
     Parameters
     ----------
@@ -85,7 +85,7 @@ def feed_profile(model, plan, duration: float, seed: int) -> FeedProfile:
     scale = plan.feed_wander_sigma * math.sqrt(1.0 - phi * phi)
     for k in range(1, n_knots):   # knots are hourly: a short loop, not a hot path
         x[k] = phi * x[k - 1] + scale * eps[k]
-    return FeedProfile(plan.feed_knot_spacing, np.maximum(nominal * (1.0 + x), 0.0))
+    return FeedProfile.from_knots(plan.feed_knot_spacing, np.maximum(nominal * (1.0 + x), 0.0))
 
 
 def level_to_volume(model, level_fraction):
