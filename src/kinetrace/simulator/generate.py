@@ -223,7 +223,7 @@ def generate_sample_historian(config_path, out_dir, *, scenario_path=None, scena
         e["first_row"] = _iso(sc.start, e.pop("first_row_s", None))
         e["last_row"] = _iso(sc.start, e.pop("last_row_s", None))
     facts = {
-        "scenario": sc.source, "config": str(config_path), "seed": sc.seed,
+        "scenario": Path(sc.source).name, "config": Path(config_path).name, "seed": sc.seed,
         "start": _iso(sc.start, 0.0), "end": _iso(sc.start, duration), "days": sc.days, "step_s": sc.step,
         "quality_codes": {"OK": "good", "SUSPECT": "uncertain: analyzer validation run on its check standard",
                           "BAD": "bad; value empty or garbage"},

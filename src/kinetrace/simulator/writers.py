@@ -26,6 +26,7 @@ from pathlib import Path
 import numpy as np
 import pandas as pd
 
+from ..errors import KinetraceError
 from .sensors import QUALITY_NAMES
 
 READINGS_COLUMNS = ("timestamp", "tag", "value", "quality")
@@ -76,15 +77,11 @@ def readings_frame(readings: dict, start, step: float, significant_digits: int =
 def round_significant(values, digits: int) -> np.ndarray:
     """Round to ``digits`` significant digits; NaN stays NaN, 0 stays 0. [same unit]
 
-    >>> round_significant([123456.789, -0.000123456, 0.0], 3).tolist()
-    [123000.0, -0.000123, 0.0]
+    >>> round_significant([123456.789, -0.000123456, 0.0, float("nan")], 3).tolist()
+    [123000.0, -0.000123, 0.0, nan]
     """
-    v = np.asarray(values, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        mag = np.floor(np.log10(np.abs(v)))
-    dec = np.where(np.isfinite(mag), digits - 1 - mag, 0).astype(int)
-    text = [f"{x:.{d}f}" if d >= 0 else f"{round(x, int(d)):.0f}" for x, d in zip(v.tolist(), dec.tolist())]
-    return np.array(text, dtype=float)
+    fmt = f"{{:.{int(digits)}g}}".format
+    return np.array([float(fmt(x)) for x in np.asarray(values, dtype=float).tolist()], dtype=float)
 
 
 def _atomic(path: Path):
@@ -96,11 +93,21 @@ def _atomic(path: Path):
 
 
 def write_csv(frame: pd.DataFrame, path) -> Path:
-    """Write the long readings CSV (``timestamp,tag,value,quality``; empty value for NaN)."""
+    """Write the long readings CSV (``timestamp,tag,value,quality``; empty value for NaN).
+
+    Tags are written unquoted: the writer refuses a tag holding a comma, quote or newline.
+    """
+    bad = [t for t in frame["tag"].unique() if any(ch in t for ch in ',"\n')]
+    if bad:
+        raise KinetraceError(f"tags {bad} hold a comma, quote or newline; the CSV export writes tags unquoted")
     path = Path(path)
     tmp = _atomic(path)
-    frame.loc[:, list(READINGS_COLUMNS)].to_csv(tmp, index=False, na_rep="", float_format="%.15g",
-                                                 lineterminator="\n")
+    # shortest text that reads back to the same double (the values are already rounded)
+    text = [repr(v) if v == v else "" for v in frame["value"].to_numpy(float).tolist()]
+    rows = zip(frame["timestamp"].tolist(), frame["tag"].tolist(), text, frame["quality"].tolist())
+    with open(tmp, "w", encoding="utf-8", newline="\n") as fh:
+        fh.write(",".join(READINGS_COLUMNS) + "\n")
+        fh.writelines(f"{a},{b},{c},{d}\n" for a, b, c, d in rows)
     os.replace(tmp, path)
     return path
 
