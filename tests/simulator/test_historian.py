@@ -82,6 +82,11 @@ def test_truth_schema(truth, models):
                 "product_rate"} | {f"conc_{s}" for s in m.species} | {f"rate_{r}" for r in m.reaction_ids} \
             | {f"k_ref_{r}" for r in m.reaction_ids}
         assert want <= set(t.columns)
+        # k_ref(t) = k_ref,fresh a(t) on catalysed reactions, a = exp(-kd t) (Levenspiel 1999 ch. 21)
+        main = m.reaction_ids[0]
+        t_s = (t["timestamp"] - t["timestamp"].iloc[0]).dt.total_seconds().to_numpy()
+        kd = {"R-210": 0.007, "R-220": 0.0015}[uid] / 86400.0                 # scenario.toml
+        np.testing.assert_allclose(t[f"k_ref_{main}"], m.rate_laws[main].k_ref * np.exp(-kd * t_s), rtol=1e-12)
         # product rate is Q_out C_product by definition
         np.testing.assert_allclose(t["product_rate"], t["outlet_flow"] * t[f"conc_{m.product}"], rtol=1e-12)
 

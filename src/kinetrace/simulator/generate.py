@@ -28,11 +28,21 @@ from .scenario import Scenario, load_scenario
 from .sensors import read_tag, sensor_sigma
 from .writers import readings_frame, write_csv, write_json, write_sqlite, write_truth
 
+#: The shipped scenario and demo plant (source tree layout: src/kinetrace/simulator -> repository root).
 DEFAULT_SCENARIO = Path(__file__).resolve().parents[3] / "sample_historian" / "scenario.toml"
+DEFAULT_CONFIG = Path(__file__).resolve().parents[3] / "config" / "demo_plant.toml"
 
 
 def check_scenario(scenario: Scenario, models) -> None:
-    """Cross-check a scenario against the configured units; raise ConfigError listing every problem."""
+    """Cross-check a scenario against the configured units; raise ConfigError listing every problem.
+
+    Checked: each unit has a plan, catalysed reactions, extra feed species, dead-time and fault tags
+    exist, a level-controlled unit has a controller gain, every schedule set point lies inside the
+    unit's safe limits, every validation tag has a check-standard value.
+
+    >>> from kinetrace.config import load_config, unit_model
+    >>> check_scenario(load_scenario(DEFAULT_SCENARIO), [unit_model(u) for u in load_config(DEFAULT_CONFIG).units])
+    """
     problems = ProblemList()
     by_id = {m.id: m for m in models}
     tags = {t.tag: m for m in models for t in m.tags}
@@ -176,6 +186,13 @@ def generate_sample_historian(config_path, out_dir, *, scenario_path=None, scena
     -------
     dict of str -> Path
         ``csv``, ``sqlite`` (if written), ``truth_<unit id>`` for each unit, ``facts``.
+
+    >>> import tempfile, pandas as pd
+    >>> with tempfile.TemporaryDirectory() as tmp:
+    ...     paths = generate_sample_historian(DEFAULT_CONFIG, tmp, days=0.25, write_sql=False)
+    ...     rows = pd.read_csv(paths["csv"])
+    >>> sorted(paths), list(rows.columns)
+    (['csv', 'facts', 'truth_R-210', 'truth_R-220'], ['timestamp', 'tag', 'value', 'quality'])
     """
     sc = scenario if scenario is not None else load_scenario(scenario_path or DEFAULT_SCENARIO)
     if seed is not None or days is not None:
@@ -236,4 +253,5 @@ def generate_sample_historian(config_path, out_dir, *, scenario_path=None, scena
     return paths
 
 
-__all__ = ["generate_sample_historian", "check_scenario", "daily_production", "unit_facts", "DEFAULT_SCENARIO"]
+__all__ = ["generate_sample_historian", "check_scenario", "daily_production", "unit_facts", "DEFAULT_SCENARIO",
+           "DEFAULT_CONFIG"]

@@ -89,7 +89,13 @@ def feed_profile(model, plan, duration: float, seed: int) -> FeedProfile:
 
 
 def level_to_volume(model, level_fraction):
-    """Liquid volume from level through the configured table. [m^3]; level in [-] (fraction of span)."""
+    """Liquid volume from level through the configured table. [m^3]; level in [-] (fraction of span).
+
+    >>> from types import SimpleNamespace
+    >>> tank = SimpleNamespace(level_table=np.array([[0.0, 0.6], [0.5, 8.1], [1.0, 15.6]]))
+    >>> round(float(level_to_volume(tank, 0.6)), 6), round(float(volume_to_level(tank, 9.6)), 6)
+    (9.6, 0.6)
+    """
     tab = model.level_table
     return np.interp(level_fraction, tab[:, 0], tab[:, 1])
 
@@ -106,6 +112,26 @@ def build_segments(model, plan, duration: float) -> list[Segment]:
     Schedule entries after the end are ignored; during the shutdown the feed is zero, the
     temperature set point is the shutdown's and a level controller is in manual with the outlet
     closed (an overflow unit simply stops overflowing).
+
+    Parameters
+    ----------
+    model : UnitModel
+    plan : UnitPlan
+    duration : float
+        Run length. [s]
+
+    Returns
+    -------
+    list of Segment
+        Flows [m^3/s], set points [K] and [m^3], times [s].
+
+    >>> from kinetrace.config import load_config, unit_model
+    >>> from kinetrace.simulator.generate import DEFAULT_SCENARIO, DEFAULT_CONFIG
+    >>> from kinetrace.simulator import load_scenario
+    >>> model = unit_model(load_config(DEFAULT_CONFIG).units[0])
+    >>> segs = build_segments(model, load_scenario(DEFAULT_SCENARIO).plan("R-210"), 90 * 86400.0)
+    >>> [(round(s.start / 86400, 2), round(s.feed_flow * 3600, 2), s.manual_outlet) for s in segs]
+    [(0.0, 4.6, None), (10.33, 4.9, None), (23.58, 4.9, None), (34.25, 0.0, 0.0), (35.5, 4.9, None), (45.33, 4.9, None)]
     """
     cuts = {0.0, float(duration)}
     cuts.update(s.at for s in plan.steps if 0.0 < s.at < duration)
@@ -177,6 +203,15 @@ def simulate_unit(model, plan, duration: float, *, seed: int, step: float = 60.0
     tuple (CstrRun, FeedProfile)
         The integrated run (SI arrays on the grid) and the feed composition used;
         :func:`truth_frame` makes the table.
+
+    >>> from kinetrace.config import load_config, unit_model
+    >>> from kinetrace.simulator.generate import DEFAULT_SCENARIO, DEFAULT_CONFIG
+    >>> from kinetrace.simulator import load_scenario
+    >>> sc = load_scenario(DEFAULT_SCENARIO)
+    >>> model = unit_model(load_config(DEFAULT_CONFIG).units[1])
+    >>> run, feed = simulate_unit(model, sc.plan("R-220"), 86400.0, seed=sc.seed)
+    >>> run.t.shape, round(float(run.volume[0]), 3)          # 1440 minutes, 1500 US gal
+    ((1440,), 5.678)
     """
     kin = Kinetics.from_unit_model(model, plan.catalysed)
     unknown = set(plan.catalysed) - set(model.reaction_ids)
@@ -205,6 +240,11 @@ def truth_frame(model, plan, run: CstrRun, feed: FeedProfile, start) -> pd.DataF
     feed : FeedProfile
     start : datetime
         Run start (UTC); row times are ``start + run.t``.
+
+    Returns
+    -------
+    DataFrame
+        One row per grid time; units in :data:`TRUTH_COLUMNS`.
     """
     kin = Kinetics.from_unit_model(model, plan.catalysed)
     conc = run.conc

@@ -123,6 +123,16 @@ def load_scenario(path: str | Path) -> Scenario:
     ------
     ConfigError
         Listing every problem of the file with its key path.
+
+    >>> from kinetrace.simulator.generate import DEFAULT_SCENARIO
+    >>> sc = load_scenario(DEFAULT_SCENARIO)
+    >>> sc.days, sc.step, [p.unit_id for p in sc.units]
+    (90.0, 60.0, ['R-210', 'R-220'])
+    >>> load_scenario("no/such/scenario.toml")
+    Traceback (most recent call last):
+    ...
+    kinetrace.errors.ConfigError: no/such/scenario.toml: 1 configuration problem:
+      - (file): scenario file not found
     """
     path = Path(path)
     if not path.is_file():
