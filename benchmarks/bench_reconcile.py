@@ -10,17 +10,25 @@ Prints (never asserts):
    and against one vectorised evaluation of the balance residuals.
 
 Run:  PYTHONPATH=src .venv/bin/python benchmarks/bench_reconcile.py [n_steps] [n_sample]
+
+BLAS threads are limited to one (set before numpy is imported) for both kinetrace and the
+baseline: the products here are small, and on a shared machine threaded BLAS spends more
+time synchronising than computing. Override with OPENBLAS_NUM_THREADS.
 """
 
 from __future__ import annotations
 
-import sys
-import time
+import os
 
-import numpy as np
-from scipy import optimize
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 
-from kinetrace.reconcile import reconcile_cstr
+import sys  # noqa: E402
+import time  # noqa: E402
+
+import numpy as np  # noqa: E402
+from scipy import optimize  # noqa: E402
+
+from kinetrace.reconcile import reconcile_cstr  # noqa: E402
 
 NU = np.array([[-1.0, 0.0], [1.0, -1.0], [0.0, 1.0], [-1.0, -1.0]])
 C_IN = np.array([1000.0, 0.0, 0.0, 1500.0])
@@ -61,7 +69,7 @@ def slsqp_step(yt):
     return yt + SIG * sol.x[:10], sol.x[10:]
 
 
-def main(T=1_000_000, n_sample=300, chunk=200_000):
+def main(T=1_000_000, n_sample=300, chunk=100_000):
     qi, qo, ci, co = make_data(T)
     kw = dict(sigma_q_in=SIG_Q, sigma_q_out=SIG_Q, sigma_c_in=SIG_CIN, sigma_c_out=SIG_COUT)
 
@@ -99,6 +107,7 @@ def main(T=1_000_000, n_sample=300, chunk=200_000):
     dxi = max(np.max(np.abs(keep_xi[k] - ref[k][1]) / np.abs(ref[k][1])) for k in range(n_sample))
 
     it = np.sum(iters, axis=0)
+    print(f"OPENBLAS_NUM_THREADS={os.environ['OPENBLAS_NUM_THREADS']}")
     print(f"steps: {T:,}   converged: {n_conv:,}   iterations per step: mean "
           f"{np.dot(np.arange(it.size), it) / it.sum():.2f}, max {np.flatnonzero(it).max()}")
     print(f"kinetrace reconcile_cstr:        {t_ours:9.2f} s  ({t_ours / T * 1e6:.2f} us/step)")

@@ -16,7 +16,7 @@ Reconciliation
     ``reconcile_cstr(q_in, q_out, c_in, c_out, nu, *, sigma_q_in, sigma_q_out,
     sigma_c_in, sigma_c_out, dvdt=None, sigma_dvdt=0.0, accumulation=None,
     element_matrix=None, species=None, reactions=None, max_iter=50, tol=1e-10,
-    nonconvergence="flag", cov="diag", sigma_source="given", chunk_size=50000)
+    nonconvergence="flag", cov="diag", sigma_source="given", chunk_size=4096)
     -> CSTRReconciliation``
         Bilinear flow x concentration reconciliation of a liquid CSTR by successive
         linearisation (Crowe 1986), vectorised over steps with a per-step convergence

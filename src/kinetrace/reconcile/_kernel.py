@@ -7,9 +7,13 @@ Solves, for every time step t at once,
 with the unmeasured z eliminated by a projection P_t (P_t Az_t = 0) taken from the
 SVD of the column-equilibrated Az_t (Crowe, Garcia Campos & Hrymak 1983), then the
 closed form of Kuehn & Davidson (1961) on the reduced constraints B_t = P_t A_t.
-Matrices carry a leading axis of length 1 (shared by all steps) or T (one per step),
-so that numpy broadcasting in ``matmul`` does the batching: there is no Python loop
-over time steps, only over the few distinct ranks of Az_t.
+
+Layout: time is the LAST axis ("structure of arrays"): vectors are (n, K), matrices
+(a, b, K), with K = 1 for a matrix shared by all steps. Every elementwise operation then
+runs over long contiguous vectors, products with shared matrices are single BLAS calls,
+and the small p x p systems are solved by a Cholesky factorisation written out over the
+(few) matrix indices, each operation vectorised over time. There is no Python loop over
+time steps, only over matrix indices and over the few distinct ranks of Az_t.
 
 This module is private; the public entry points are in :mod:`.linear` and :mod:`.cstr`.
 """
@@ -27,11 +31,6 @@ NULL_TOL = 1e-8
 def _t(a):
     """Transpose the last two axes."""
     return np.swapaxes(a, -1, -2)
-
-
-def _take(a, idx):
-    """Rows ``idx`` of a stacked array whose leading axis is 1 (shared) or T."""
-    return a if a.shape[0] == 1 else a[idx]
 
 
 def _projection(azs):
@@ -87,36 +86,114 @@ def _pinv_sym(S):
     return Sinv, rank
 
 
-def _solve_sym(S, rhs):
-    """Solve stacked SPD systems ``S lam = rhs``; pseudo-inverse where rank deficient."""
-    k, p, _ = S.shape
+def _mm(X, Y):
+    """Stacked product (a, b, Kx) @ (b, c, Ky) -> (a, c, K), K = max(Kx, Ky)."""
+    kx, ky = X.shape[2], Y.shape[2]
+    if kx == 1 and ky == 1:
+        return (X[..., 0] @ Y[..., 0])[..., None]
+    if kx == 1:
+        return np.tensordot(X[..., 0], Y, axes=(1, 0))
+    if ky == 1:
+        return np.einsum("abk,bc->ack", X, Y[..., 0])
+    out = X[:, 0, None, :] * Y[None, 0]
+    for j in range(1, X.shape[1]):
+        out += X[:, j, None, :] * Y[None, j]
+    return out
+
+
+def _mv(X, v):
+    """Stacked matrix-vector product (a, b, Kx) @ (b, K) -> (a, K)."""
+    if X.shape[2] == 1:
+        return X[..., 0] @ v
+    return np.einsum("abk,bk->ak", X, np.broadcast_to(v, X.shape[1:]))
+
+
+def _gram(B, v):
+    """S[p, q] = sum_j B[p, j] B[q, j] v[j] -> (p, p, k)."""
+    p, n, kb = B.shape
     if p == 0:
-        return np.zeros((k, 0))
-    try:
-        L = np.linalg.cholesky(S)
-        ok = np.all(np.diagonal(L, axis1=1, axis2=2) ** 2 > RANK_TOL * np.diagonal(S, axis1=1, axis2=2))
-    except np.linalg.LinAlgError:
-        ok = False
-    if ok:
-        return np.linalg.solve(S, rhs[:, :, None])[..., 0]
-    Sinv, _ = _pinv_sym(S)
-    return np.einsum("kpq,kq->kp", Sinv, rhs)
+        return np.zeros((0, 0, v.shape[1]))
+    if kb == 1:
+        Bpq = (B[:, None, :, 0] * B[None, :, :, 0]).reshape(p * p, n)
+        return (Bpq @ v).reshape(p, p, -1)
+    BV = B * v[None]
+    S = np.empty((p, p, v.shape[1]))
+    for i in range(p):
+        for j in range(i + 1):
+            S[i, j] = S[j, i] = np.einsum("nk,nk->k", BV[i], B[j])
+    return S
+
+
+def _cholesky(S):
+    """Lower Cholesky factor of stacked (p, p, k) matrices and a per-step full-rank flag."""
+    p, _, k = S.shape
+    L = np.zeros_like(S)
+    ok = np.ones(k, bool)
+    for i in range(p):
+        d = S[i, i] - np.sum(L[i, :i] ** 2, axis=0)
+        ok &= d > RANK_TOL * np.abs(S[i, i])
+        L[i, i] = np.sqrt(np.where(ok, d, 1.0))
+        for j in range(i + 1, p):
+            L[j, i] = (S[j, i] - np.sum(L[j, :i] * L[i, :i], axis=0)) / L[i, i]
+    return L, ok
+
+
+def _chol_solve(L, r):
+    """Solve L L' lam = r for stacked (p, p, k) factors and (p, k) right sides."""
+    p = L.shape[0]
+    w = np.empty_like(r)
+    for i in range(p):
+        w[i] = (r[i] - np.sum(L[i, :i] * w[:i], axis=0)) / L[i, i]
+    lam = np.empty_like(r)
+    for i in reversed(range(p)):
+        lam[i] = (w[i] - np.sum(L[i + 1:, i] * lam[i + 1:], axis=0)) / L[i, i]
+    return lam
+
+
+def _chol_inverse(L):
+    """(L L')^-1 for stacked (p, p, k) lower factors."""
+    p = L.shape[0]
+    Li = np.zeros_like(L)
+    for i in range(p):
+        Li[i, i] = 1.0 / L[i, i]
+        for j in range(i + 1, p):
+            Li[j, i] = -np.sum(L[j, i:j] * Li[i:j, i], axis=0) / L[j, j]
+    Sinv = np.empty_like(L)
+    for a in range(p):
+        for b in range(a + 1):
+            Sinv[a, b] = Sinv[b, a] = np.sum(Li[a:, a] * Li[a:, b], axis=0)
+    return Sinv
+
+
+def _inverse(S, need_inverse):
+    """Factor stacked S (p, p, k); return (L, ok, Sinv or None, rank) with a pseudo-inverse
+    (eigen-decomposition) for rank-deficient steps."""
+    p, _, k = S.shape
+    L, ok = _cholesky(S)
+    rank = np.full(k, p)
+    Sinv = _chol_inverse(L) if (need_inverse or not ok.all()) else None
+    if not ok.all():
+        bad = np.flatnonzero(~ok)
+        pinv, rk = _pinv_sym(np.moveaxis(S[:, :, bad], 2, 0))
+        Sinv[:, :, bad] = np.moveaxis(pinv, 0, 2)
+        rank[bad] = rk
+    return L, ok, Sinv, rank
 
 
 def wls_kernel(y, var, A, Az=None, b=None, full_cov=False, minimal=False):
-    """Reconcile stacked measurements with linear constraints ``A x + Az z = b``.
+    """Reconcile measurements with linear constraints ``A x + Az z = b`` (time-last layout).
 
     Parameters
     ----------
-    y : ndarray (T, n)
+    y : ndarray (n, k)
         Measurements, all finite. [any]
-    var : ndarray (T, n)
+    var : ndarray (n, k)
         Measurement variances, all > 0. [unit of y squared]
-    A : ndarray (m, n) or (T, m, n)
-        Constraint coefficients of the measured variables.
-    Az : ndarray (m, nz) or (T, m, nz), optional
+    A : ndarray (m, n, K)
+        Constraint coefficients of the measured variables, K = 1 (shared) or k.
+    Az : ndarray (m, nz, K), optional
         Constraint coefficients of the unmeasured variables.
-    b : ndarray (m,) or (T, m), optional
+    b : ndarray (m, K), optional
         Right-hand side (default 0).
     full_cov : bool
         Also return full covariance matrices.
@@ -125,95 +202,82 @@ def wls_kernel(y, var, A, Az=None, b=None, full_cov=False, minimal=False):
 
     Returns
     -------
-    dict of ndarray
-        ``x, var_adj, var_x, z, var_z, observable, redundant, objective, dof,
-        imbalance, imbalance_sd`` and, with ``full_cov``, ``cov_x, cov_z, cov_zx``.
+    dict of ndarray (time last)
+        ``x, z`` and unless ``minimal``: ``var_adj, var_x, var_z, observable, redundant,
+        objective, dof, imbalance, imbalance_sd``; with ``full_cov`` also ``cov_x, cov_z,
+        cov_zx``.
     """
-    T, n = y.shape
-    A = A[None] if A.ndim == 2 else A
-    m = A.shape[1]
-    if Az is None:
-        Az = np.zeros((1, m, 0))
-    Az = Az[None] if Az.ndim == 2 else Az
-    nz = Az.shape[2]
-    b = np.zeros((1, m)) if b is None else (b[None] if b.ndim == 1 else b)
+    n, k = y.shape
+    m = A.shape[0]
+    Az = np.zeros((m, 0, 1)) if Az is None else Az
+    nz = Az.shape[1]
+    b = np.zeros((m, 1)) if b is None else b
 
     # Row equilibration (numerical conditioning only; the solution does not depend on it).
-    sig_ref = np.sqrt(np.median(var, axis=0))
-    rs = np.linalg.norm(A[0] * sig_ref, axis=1)
-    alt = np.linalg.norm(Az[0], axis=1)
+    sig_ref = np.sqrt(var.mean(axis=1))
+    rs = np.linalg.norm(A[:, :, 0] * sig_ref, axis=1)
+    alt = np.linalg.norm(Az[:, :, 0], axis=1)
     rs = np.where(rs > 0, rs, np.where(alt > 0, alt, 1.0))
-    As, Azs, bs = A / rs[:, None], Az / rs[:, None], b / rs
+    As, Azs, bs = A / rs[:, None, None], Az / rs[:, None, None], b / rs[:, None]
 
-    if minimal:
-        out = {"x": np.empty((T, n)), "z": np.empty((T, nz))}
-        for idx, P, pinv, obs in _projection(Azs):
-            yk, vk = y[idx], var[idx]
-            Ask, bsk = _take(As, idx), _take(bs, idx)
-            B = P @ Ask
-            rr = np.einsum("kpn,kn->kp", np.broadcast_to(B, (yk.shape[0],) + B.shape[1:]), yk)
-            rr -= np.einsum("kpm,km->kp", np.broadcast_to(P, (yk.shape[0],) + P.shape[1:]),
-                            np.broadcast_to(bsk, (yk.shape[0], m)))
-            BV = B * vk[:, None, :]
-            lam = _solve_sym(BV @ _t(B), rr)
-            x = yk - np.einsum("kpn,kp->kn", BV, lam)
-            rhs = bsk - np.einsum("kmn,kn->km", np.broadcast_to(Ask, (yk.shape[0],) + Ask.shape[1:]), x)
-            z = np.einsum("kzm,km->kz", np.broadcast_to(pinv, (yk.shape[0],) + pinv.shape[1:]), rhs)
-            out["x"][idx], out["z"][idx] = x, np.where(obs, z, np.nan)
-        return out
+    keys = ("x", "z") if minimal else (
+        "x", "z", "var_adj", "var_x", "var_z", "observable", "redundant", "objective", "dof",
+        "imbalance", "imbalance_sd") + (("cov_x", "cov_z", "cov_zx") if full_cov else ())
+    shapes = {"x": (n,), "z": (nz,), "var_adj": (n,), "var_x": (n,), "var_z": (nz,),
+              "observable": (nz,), "redundant": (n,), "objective": (), "dof": (),
+              "imbalance": (m,), "imbalance_sd": (m,), "cov_x": (n, n), "cov_z": (nz, nz),
+              "cov_zx": (nz, n)}
+    dtypes = {"observable": bool, "redundant": bool, "dof": int}
+    out = {key: np.empty(shapes[key] + (k,), dtypes.get(key, float)) for key in keys}
 
-    out = {
-        "x": np.empty((T, n)), "var_adj": np.empty((T, n)), "var_x": np.empty((T, n)),
-        "z": np.empty((T, nz)), "var_z": np.empty((T, nz)),
-        "observable": np.empty((T, nz), bool), "redundant": np.empty((T, n), bool),
-        "objective": np.empty(T), "dof": np.empty(T, int),
-        "imbalance": np.empty((T, m)), "imbalance_sd": np.empty((T, m)),
-    }
-    if full_cov:
-        out.update(cov_x=np.empty((T, n, n)), cov_z=np.empty((T, nz, nz)), cov_zx=np.empty((T, nz, n)))
-
-    for idx, P, pinv, obs in _projection(Azs):
-        yk, vk = y[idx], var[idx]
-        Ak, Ask, bsk = _take(A, idx), _take(As, idx), _take(bs, idx)
-        B = P @ Ask  # (L, p, n)
-        rr = (B @ yk[:, :, None])[..., 0] - (P @ bsk[:, :, None])[..., 0]
-        BV = B * vk[:, None, :]  # (k, p, n)
-        S = BV @ _t(B)
-        Sinv, rank = _pinv_sym(S)
-        lam = (Sinv @ rr[:, :, None])[..., 0]
-        x = yk - (_t(BV) @ lam[:, :, None])[..., 0]
-        SB = Sinv @ B  # (k, p, n)
-        h_diag = np.sum(B * SB, axis=1)  # diag(B' S^+ B)
-        var_adj = vk * vk * h_diag
-        colnorm = np.linalg.norm(B * np.sqrt(vk)[:, None, :], axis=1)
-        redundant = colnorm > NULL_TOL * np.maximum(colnorm.max(axis=1, keepdims=True), 1e-300)
-
-        # Unmeasured: z = Az^+ (b - A x), Cov(z) = G V G' - (G V B') S^+ (B V G')
-        G = pinv @ Ask  # (L, nz, n)
-        z = (pinv @ (bsk - (Ask @ x[:, :, None])[..., 0])[:, :, None])[..., 0]
-        GV = G * vk[:, None, :]
-        K = GV @ _t(B)
-        cov_z = GV @ _t(G) - K @ Sinv @ _t(K)
+    for idx, P, pinv, obs in _projection(np.moveaxis(Azs, 2, 0)):
+        P, pinv, obs = np.moveaxis(P, 0, 2), np.moveaxis(pinv, 0, 2), np.moveaxis(obs, 0, 1)
+        sel = (lambda a: a if a.shape[-1] == 1 else a[..., idx])
+        yk, vk = y[:, idx], var[:, idx]
+        kk = yk.shape[1]
+        Ak, Ask, bsk = sel(A), sel(As), np.broadcast_to(sel(bs), (m, kk))
+        B = _mm(P, Ask)  # (p, n, K)
+        p = B.shape[0]
+        rr = _mv(B, yk) - _mv(P, bsk)
+        S = _gram(B, vk)
+        L, ok, Sinv, rank = _inverse(S, need_inverse=not minimal)
+        if ok.all():
+            lam = _chol_solve(L, rr) if p else rr
+        else:
+            lam = np.einsum("pqk,qk->pk", Sinv, rr)
+        BtL = B[..., 0].T @ lam if B.shape[2] == 1 else np.einsum("pnk,pk->nk", B, lam)
+        x = yk - vk * BtL
+        z = _mv(pinv, bsk - _mv(Ask, x))
         z = np.where(obs, z, np.nan)
-        var_z = np.where(obs, np.diagonal(cov_z, axis1=1, axis2=2), np.nan)
-
-        # Closure of the original rows at the raw data: e = A (y - x), Var(e) = diag(A V B' S^+ B V A')
-        M = (Ak * vk[:, None, :]) @ _t(B)
-        out["imbalance"][idx] = (Ak @ (yk - x)[:, :, None])[..., 0]
-        out["imbalance_sd"][idx] = np.sqrt(np.maximum(np.sum((M @ Sinv) * M, axis=-1), 0.0))
-
-        out["x"][idx], out["var_adj"][idx], out["var_x"][idx] = x, var_adj, vk - var_adj
-        out["z"][idx], out["var_z"][idx] = z, var_z
-        out["observable"][idx] = np.broadcast_to(obs, z.shape)
-        out["redundant"][idx] = np.broadcast_to(redundant, x.shape)
-        out["objective"][idx] = np.sum(rr * lam, axis=1)
-        out["dof"][idx] = rank
-        if full_cov:
-            H = _t(B) @ SB  # (k, n, n)
-            cov_x = -vk[:, :, None] * H * vk[:, None, :]
-            cov_x[:, np.arange(n), np.arange(n)] += vk
-            both = obs[:, :, None] & obs[:, None, :]
-            out["cov_x"][idx] = cov_x
-            out["cov_z"][idx] = np.where(both, cov_z, np.nan)
-            out["cov_zx"][idx] = np.where(obs[:, :, None], -G @ cov_x, np.nan)
+        o = {"x": x, "z": z}
+        if not minimal:
+            Bb = np.broadcast_to(B, (p, n, kk))
+            SB = np.einsum("pqk,qnk->pnk", Sinv, Bb)
+            var_adj = vk * vk * np.einsum("pnk,pnk->nk", Bb, SB)
+            colnorm = np.sqrt(np.einsum("pnk,pnk->nk", Bb, Bb) * vk)
+            G = np.broadcast_to(_mm(pinv, Ask), (nz, n, kk))
+            GV = G * vk[None]
+            Kz = np.einsum("ank,pnk->apk", GV, Bb)
+            cov_z = np.einsum("ank,bnk->abk", GV, G) - np.einsum(
+                "aqk,bqk->abk", np.einsum("apk,pqk->aqk", Kz, Sinv), Kz)
+            Ab = np.broadcast_to(Ak, (m, n, kk))
+            Mx = np.einsum("mnk,pnk->mpk", Ab * vk[None], Bb)
+            o.update(
+                var_adj=var_adj, var_x=vk - var_adj,
+                var_z=np.where(obs, np.einsum("aak->ak", cov_z), np.nan),
+                observable=np.broadcast_to(obs, (nz, kk)),
+                redundant=colnorm > NULL_TOL * np.maximum(colnorm.max(axis=0, keepdims=True), 1e-300),
+                objective=np.sum(rr * lam, axis=0), dof=rank,
+                imbalance=_mv(Ak, yk - x),
+                imbalance_sd=np.sqrt(np.maximum(np.einsum(
+                    "mqk,mqk->mk", np.einsum("mpk,pqk->mqk", Mx, Sinv), Mx), 0.0)))
+            if full_cov:
+                H = np.einsum("pnk,pjk->njk", Bb, SB)
+                cov_x = -vk[:, None] * H * vk[None]
+                cov_x[np.arange(n), np.arange(n)] += vk
+                both = obs[:, None] & obs[None, :]
+                o.update(cov_x=cov_x, cov_z=np.where(both, cov_z, np.nan),
+                         cov_zx=np.where(obs[:, None], -np.einsum("ank,njk->ajk", G, cov_x), np.nan))
+        for key in keys:
+            out[key][..., idx] = o[key]
     return out

@@ -12,7 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from ._errors import ReconciliationError
-from ._kernel import _take, wls_kernel
+from ._kernel import _mv, wls_kernel
 
 MEASURED, MISSING, FIXED = 0, 1, 2
 
@@ -46,11 +46,18 @@ def check_inputs(y, sigma, names):
     return y, np.array(sigma), status
 
 
-def _cols(a, idx):
-    """Columns ``idx`` of the last axis; a view when they are contiguous."""
+def _cols0(a, idx):
+    """Rows ``idx`` (axis 0); a view when they are contiguous."""
     if idx.size and idx[-1] - idx[0] + 1 == idx.size:
-        return a[..., idx[0]:idx[-1] + 1]
-    return a[..., idx]
+        return a[idx[0]:idx[-1] + 1]
+    return a[idx]
+
+
+def _cols1(a, idx):
+    """Columns ``idx`` (axis 1); a view when they are contiguous."""
+    if idx.size and idx[-1] - idx[0] + 1 == idx.size:
+        return a[:, idx[0]:idx[-1] + 1]
+    return a[:, idx]
 
 
 def group_patterns(status):
@@ -67,27 +74,32 @@ def group_patterns(status):
 def solve_patterns(y, sigma, status, A, Az, b, full_cov=False, groups=None, minimal=False):
     """Reconcile every step, grouping steps by ``status`` pattern.
 
-    ``A`` is (m, n) or (T, m, n), ``Az`` (m, nz), (T, m, nz) or None, ``b`` (m,), (T, m)
-    or None. ``groups`` = :func:`group_patterns` of ``status`` if already known. Returns a dict of full-size arrays (see :class:`.results.Reconciliation`).
+    ``y, sigma, status`` are (T, n). Constraint arrays have time LAST: ``A`` is (m, n) or
+    (m, n, T), ``Az`` (m, nz), (m, nz, T) or None, ``b`` (m,), (m, T) or None.
+    ``groups`` = :func:`group_patterns` of ``status`` if already known. Returns a dict of
+    full-size arrays with time FIRST (see :class:`.results.Reconciliation`).
     """
     T, n = y.shape
-    A = A[None] if A.ndim == 2 else A
-    m = A.shape[1]
-    Az = np.zeros((1, m, 0)) if Az is None else (Az[None] if Az.ndim == 2 else Az)
-    nz = Az.shape[2]
-    b = np.zeros((1, m)) if b is None else (b[None] if np.ndim(b) == 1 else b)
+    A = A[..., None] if A.ndim == 2 else A
+    m = A.shape[0]
+    Az = np.zeros((m, 0, 1)) if Az is None else (Az[..., None] if Az.ndim == 2 else Az)
+    nz = Az.shape[1]
+    b = np.zeros((m, 1)) if b is None else (b[:, None] if np.ndim(b) == 1 else b)
 
-    out = {"x": np.full((T, n), np.nan), "z": np.full((T, nz), np.nan)} if minimal else {
-        "x": np.full((T, n), np.nan), "var_x": np.full((T, n), np.nan),
-        "var_adj": np.full((T, n), np.nan), "z": np.full((T, nz), np.nan),
-        "var_z": np.full((T, nz), np.nan), "redundant": np.zeros((T, n), bool),
-        "observable_x": np.zeros((T, n), bool), "observable_z": np.zeros((T, nz), bool),
-        "objective": np.zeros(T), "dof": np.zeros(T, int),
-        "imbalance": np.zeros((T, m)), "imbalance_sd": np.zeros((T, m)),
-    }
-    if full_cov and not minimal:
-        out["cov_x"] = np.full((T, n, n), np.nan)
-        out["cov_z"] = np.full((T, nz, nz), np.nan)
+    if minimal:
+        out = {"x": np.full((T, n), np.nan), "z": np.full((T, nz), np.nan)}
+    else:
+        out = {
+            "x": np.full((T, n), np.nan), "var_x": np.full((T, n), np.nan),
+            "var_adj": np.full((T, n), np.nan), "z": np.full((T, nz), np.nan),
+            "var_z": np.full((T, nz), np.nan), "redundant": np.zeros((T, n), bool),
+            "observable_x": np.zeros((T, n), bool), "observable_z": np.zeros((T, nz), bool),
+            "objective": np.zeros(T), "dof": np.zeros(T, int),
+            "imbalance": np.zeros((T, m)), "imbalance_sd": np.zeros((T, m)),
+        }
+        if full_cov:
+            out["cov_x"] = np.full((T, n, n), np.nan)
+            out["cov_z"] = np.full((T, nz, nz), np.nan)
 
     patterns, inverse = group_patterns(status) if groups is None else groups
     for k, pat in enumerate(patterns):
@@ -95,49 +107,60 @@ def solve_patterns(y, sigma, status, A, Az, b, full_cov=False, groups=None, mini
         if not isinstance(idx, slice) and idx.size == 0:
             continue
         M, U, F = (np.flatnonzero(pat == s) for s in (MEASURED, MISSING, FIXED))
-        Ak = _take(A, idx)
-        bk = _take(b, idx)
+
+        def sel(a):
+            return a if a.shape[-1] == 1 else a[..., idx]
+
+        Ak, bk = sel(A), sel(b)
         yk = y[idx]
+        yT = yk.T
         if F.size:
-            bk = bk - np.einsum("kmf,kf->km", np.broadcast_to(_cols(Ak, F), (yk.shape[0], m, F.size)),
-                                _cols(yk, F))
-        Azk = np.concatenate([Ak[:, :, U], _take(Az, idx)], axis=2) if U.size else _take(Az, idx)
-        res = wls_kernel(_cols(yk, M), _cols(sigma[idx], M) ** 2, _cols(Ak, M), Azk, bk, full_cov, minimal)
+            bk = bk - _mv(_cols1(Ak, F), _cols0(yT, F))
+        Azk = np.concatenate(_stack_az(Ak[:, U], sel(Az)), axis=1) if U.size else sel(Az)
+        var = np.ascontiguousarray(_cols0(sigma[idx].T, M)) ** 2
+        res = wls_kernel(np.ascontiguousarray(_cols0(yT, M)), var, _cols1(Ak, M), Azk, bk,
+                         full_cov and not minimal, minimal)
         nu = U.size
+        kk = yk.shape[0]
+        x = yk.copy()
+        x[:, M], x[:, U] = res["x"].T, res["z"][:nu].T
+        out["x"][idx], out["z"][idx] = x, res["z"][nu:].T
         if minimal:
-            x = yk.copy()
-            x[:, M], x[:, U] = res["x"], res["z"][:, :nu]
-            out["x"][idx], out["z"][idx] = x, res["z"][:, nu:]
             continue
-        x = np.empty((yk.shape[0], n))
-        vx = np.zeros((yk.shape[0], n))
-        x[:, M], vx[:, M] = res["x"], res["var_x"]
-        x[:, U], vx[:, U] = res["z"][:, :nu], res["var_z"][:, :nu]
-        x[:, F] = yk[:, F]
-        va = np.full((yk.shape[0], n), np.nan)
-        va[:, M] = res["var_adj"]
+        vx = np.zeros((kk, n))
+        vx[:, M], vx[:, U] = res["var_x"].T, res["var_z"][:nu].T
+        va = np.full((kk, n), np.nan)
+        va[:, M] = res["var_adj"].T
         va[:, F] = 0.0
-        red = np.zeros((yk.shape[0], n), bool)
-        red[:, M] = res["redundant"]
-        obs = np.ones((yk.shape[0], n), bool)
-        obs[:, U] = res["observable"][:, :nu]
-        out["x"][idx], out["var_x"][idx], out["var_adj"][idx] = x, vx, va
+        red = np.zeros((kk, n), bool)
+        red[:, M] = res["redundant"].T
+        obs = np.ones((kk, n), bool)
+        obs[:, U] = res["observable"][:nu].T
+        out["var_x"][idx], out["var_adj"][idx] = vx, va
         out["redundant"][idx], out["observable_x"][idx] = red, obs
-        out["z"][idx], out["var_z"][idx] = res["z"][:, nu:], res["var_z"][:, nu:]
-        out["observable_z"][idx] = res["observable"][:, nu:]
+        out["var_z"][idx] = res["var_z"][nu:].T
+        out["observable_z"][idx] = res["observable"][nu:].T
         for key in ("objective", "dof", "imbalance", "imbalance_sd"):
-            out[key][idx] = res[key]
+            out[key][idx] = res[key].T
         if full_cov:
-            c = np.zeros((yk.shape[0], n, n))
-            c[:, M[:, None], M] = res["cov_x"]
-            c[:, U[:, None], U] = res["cov_z"][:, :nu, :nu]
-            c[:, U[:, None], M] = res["cov_zx"][:, :nu]
-            c[:, M[:, None], U] = np.swapaxes(res["cov_zx"][:, :nu], 1, 2)
+            cx, cz, czx = (np.moveaxis(res[key], -1, 0) for key in ("cov_x", "cov_z", "cov_zx"))
+            c = np.zeros((kk, n, n))
+            c[:, M[:, None], M] = cx
+            c[:, U[:, None], U] = cz[:, :nu, :nu]
+            c[:, U[:, None], M] = czx[:, :nu]
+            c[:, M[:, None], U] = np.swapaxes(czx[:, :nu], 1, 2)
             out["cov_x"][idx] = c
-            out["cov_z"][idx] = res["cov_z"][:, nu:, nu:]
+            out["cov_z"][idx] = cz[:, nu:, nu:]
     if minimal:
-        return {"x": out["x"], "z": out["z"]}
-    xa = np.abs(np.nan_to_num(out["x"]))[:, :, None]
-    za = np.abs(np.nan_to_num(out["z"]))[:, :, None]
-    out["imbalance_scale"] = 0.5 * ((np.abs(A) @ xa)[..., 0] + (np.abs(Az) @ za)[..., 0])
+        return out
+    xa = np.abs(np.nan_to_num(out["x"])).T
+    za = np.abs(np.nan_to_num(out["z"])).T
+    scale = _mv(np.abs(A), xa) + _mv(np.abs(Az), za)
+    out["imbalance_scale"] = 0.5 * scale.T
     return out
+
+
+def _stack_az(a, b):
+    """Concatenate two (m, *, K) arrays along axis 1, broadcasting K."""
+    k = max(a.shape[2], b.shape[2])
+    return [np.broadcast_to(a, a.shape[:2] + (k,)), np.broadcast_to(b, b.shape[:2] + (k,))]

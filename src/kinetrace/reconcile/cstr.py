@@ -155,17 +155,20 @@ class CSTRBalances:
 
     def jacobian(self, v):
         """Derivative of :meth:`residual` with respect to ``v``: (T, m, n)."""
+        return np.moveaxis(self._jacobian_tl(np.ascontiguousarray(v.T)), 2, 0)
+
+    def _jacobian_tl(self, vt):
+        """The Jacobian with time last: (m, n, T), from variables with time last (n, T)."""
         ns = self.n_species
         W = self._wm
         ne = W.shape[0]
-        T = v.shape[0]
-        qi, qo, ci, co = v[:, 0], v[:, 1], v[:, 2:2 + ns], v[:, 2 + ns:2 + 2 * ns]
-        J = np.zeros((T, ne + 1, 2 * ns + 3))
-        J[:, :ne, 0] = -ci @ W.T
-        J[:, :ne, 1] = co @ W.T
-        J[:, :ne, 2:2 + ns] = -qi[:, None, None] * W
-        J[:, :ne, 2 + ns:2 + 2 * ns] = qo[:, None, None] * W
-        J[:, ne, 0], J[:, ne, 1], J[:, ne, -1] = 1.0, -1.0, -1.0
+        qi, qo, ci, co = vt[0], vt[1], vt[2:2 + ns], vt[2 + ns:2 + 2 * ns]
+        J = np.zeros((ne + 1, 2 * ns + 3, vt.shape[1]))
+        J[:ne, 0] = -(W @ ci)
+        J[:ne, 1] = W @ co
+        J[:ne, 2:2 + ns] = -W[:, :, None] * qi
+        J[:ne, 2 + ns:2 + 2 * ns] = W[:, :, None] * qo
+        J[ne, 0], J[ne, 1], J[ne, -1] = 1.0, -1.0, -1.0
         return J
 
     def _start(self, y):
@@ -195,7 +198,7 @@ class CSTRBalances:
         return c
 
     def reconcile(self, y, sigma, accumulation=None, *, max_iter=50, tol=1e-10,
-                  nonconvergence="flag", cov="diag", chunk_size=50_000,
+                  nonconvergence="flag", cov="diag", chunk_size=4096,
                   check_observability=True) -> CSTRReconciliation:
         """Reconcile packed measurements ``y`` (T, n) (see :meth:`pack`); see :func:`reconcile_cstr`."""
         if nonconvergence not in _NONCONV:
@@ -229,12 +232,19 @@ class CSTRBalances:
                            source, conv, iters, {"n_species": self.n_species})
         return CSTRReconciliation(**{f: getattr(res, f) for f in res.__dataclass_fields__})
 
-    def _linearised(self, v, xi, y, sigma, status, acc, groups, full_cov, minimal):
-        """Solve the problem linearised at (v, xi) for the given steps."""
-        J = self.jacobian(v)
-        Jxi = self.extent_matrix
-        b = np.einsum("kmn,kn->km", J, v) + xi @ Jxi.T - self.residual(v, xi, acc)
-        return solve_patterns(y, sigma, status, J, Jxi, b, full_cov, groups, minimal)
+    def _linearised(self, v, y, sigma, status, acc, groups, full_cov, minimal):
+        """Solve the problem linearised at ``v`` for the given steps (the constraints are
+        linear in the extents, so the linearisation does not depend on them)."""
+        vt = np.ascontiguousarray(v.T)
+        J = self._jacobian_tl(vt)
+        # b = J v + Jxi xi - f(v, xi) simplifies (f is bilinear in v, linear in xi) to
+        # [W (q_out c_out - q_in c_in - acc); 0]
+        ns = self.n_species
+        g = vt[1] * vt[2 + ns:2 + 2 * ns] - vt[0] * vt[2:2 + ns]
+        if acc is not None:
+            g = g - acc.T
+        b = np.vstack([self._wm @ g, np.zeros((1, v.shape[0]))])
+        return solve_patterns(y, sigma, status, J, self.extent_matrix, b, full_cov, groups, minimal)
 
     def _iterate(self, y, sigma, status, acc, groups, max_iter, tol, full_cov):
         T, n = y.shape
@@ -248,7 +258,7 @@ class CSTRBalances:
             sub = (groups[0], groups[1][active])
             acc_a = None if acc is None else acc[active]
             va, xa = v[active], xi[active]
-            o = self._linearised(va, xa, y[active], sigma[active], status[active], acc_a, sub,
+            o = self._linearised(va, y[active], sigma[active], status[active], acc_a, sub,
                                  False, minimal=it > 1)
             if it == 1:  # step scales: sigma for measured, first-pass sd for the estimated
                 vx = np.sqrt(np.nan_to_num(o["var_x"]))
@@ -267,7 +277,7 @@ class CSTRBalances:
             if active.size == 0:
                 break
         # statistics at the final linearisation point (one more closed-form pass)
-        final = self._linearised(v, xi, y, sigma, status, acc, groups, full_cov, minimal=False)
+        final = self._linearised(v, y, sigma, status, acc, groups, full_cov, minimal=False)
         # exact (not linearised) closure at the raw data with the estimated unknowns
         raw = np.where(status == MISSING, v, y)
         final["imbalance"] = self.residual(raw, np.nan_to_num(final["z"]), acc)
@@ -284,7 +294,7 @@ class CSTRBalances:
 def reconcile_cstr(q_in, q_out, c_in, c_out, nu, *, sigma_q_in, sigma_q_out, sigma_c_in,
                    sigma_c_out, dvdt=None, sigma_dvdt=0.0, accumulation=None, element_matrix=None,
                    species=None, reactions=None, max_iter=50, tol=1e-10, nonconvergence="flag",
-                   cov="diag", sigma_source="given", chunk_size=50_000) -> CSTRReconciliation:
+                   cov="diag", sigma_source="given", chunk_size=4096) -> CSTRReconciliation:
     """Reconcile the flows and concentrations of a liquid CSTR and estimate the extents.
 
     Minimises the weighted squared adjustments of all measured variables subject to the

@@ -114,6 +114,7 @@ def reconcile_linear(y, sigma, A_y, A_z=None, b=None, *, cov="diag", names=None,
         b = np.asarray(b, dtype=float)
         if b.shape[-1] != m or b.ndim > 2 or (b.ndim == 2 and b.shape[0] != y.shape[0]):
             raise ReconciliationError(f"b must be ({m},) or ({y.shape[0]}, {m}); got {b.shape}")
-    out = solve_patterns(y, sigma, status, A_y, A_z, b, full_cov=cov == "full")
+    b_tl = None if b is None else (b if b.ndim == 1 else b.T)  # kernel layout: time last
+    out = solve_patterns(y, sigma, status, A_y, A_z, b_tl, full_cov=cov == "full")
     return build_result(y, sigma, status, out, names, _labels(unknown_names, nz, "z"),
                         _labels(constraint_names, m, "balance"), source)
