@@ -204,12 +204,11 @@ def simulate_unit(model, plan, duration: float, *, seed: int, step: float = 60.0
         The integrated run (SI arrays on the grid) and the feed composition used;
         :func:`truth_frame` makes the table.
 
-    >>> from kinetrace.config import load_config, unit_model
-    >>> from kinetrace.simulator.generate import DEFAULT_SCENARIO, DEFAULT_CONFIG
-    >>> from kinetrace.simulator import load_scenario
-    >>> sc = load_scenario(DEFAULT_SCENARIO)
-    >>> model = unit_model(load_config(DEFAULT_CONFIG).units[1])
-    >>> run, feed = simulate_unit(model, sc.plan("R-220"), 86400.0, seed=sc.seed)
+    >>> import kinetrace.config as kc
+    >>> import kinetrace.simulator as sim
+    >>> sc = sim.load_scenario(sim.generate.DEFAULT_SCENARIO)
+    >>> unit = kc.unit_model(kc.load_config(sim.generate.DEFAULT_CONFIG).units[1])
+    >>> run, feed = simulate_unit(unit, sc.plan("R-220"), 86400.0, seed=sc.seed)
     >>> run.t.shape, round(float(run.volume[0]), 3)          # 1440 minutes, 1500 US gal
     ((1440,), 5.678)
     """
