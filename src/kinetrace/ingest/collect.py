@@ -179,8 +179,8 @@ class Collector:
             name_of_row = np.zeros(n, dtype=np.int64)
         else:
             name_of_row, names = _codes(tag)
-            lut = self.tag_index(names)
-            tix = np.where(name_of_row >= 0, lut[np.maximum(name_of_row, 0)], -3)
+            lut = np.r_[self.tag_index(names), -3]     # code -1 (no tag) -> -3
+            tix = lut[name_of_row]
         if (tix < 0).any():
             self.other_unit += int((tix == -1).sum())
             self.no_tag += int((tix == -3).sum())

@@ -190,6 +190,12 @@ def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
         if not buf.endswith(b"\n"):
             buf += f.readline()
         n_lines = buf.count(b"\n") + (0 if buf.endswith(b"\n") else 1)
+        try:
+            buf.decode("utf-8")
+        except UnicodeDecodeError as exc:
+            bad_line = next_line + buf[: exc.start].count(b"\n")
+            raise IngestError(name, [Problem(f"{name}:{bad_line}", f"line is not UTF-8 text (byte "
+                                             f"0x{buf[exc.start]:02x}); export the file as UTF-8")]) from None
         invalid: list[int] = []
 
         def handler(row, _inv=invalid, _first=next_line):
