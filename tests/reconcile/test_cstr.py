@@ -166,3 +166,21 @@ def test_element_balances_only_and_bad_stoichiometry():
     r2 = _run(y)
     np.testing.assert_allclose(r.x, r2.x, rtol=1e-9)
     assert r.z.shape == (5, 0)
+
+
+def test_level_change_and_accumulation_terms(rng):
+    # Consistent data with a falling level (dV/dt < 0) and a known hold-up term: unchanged.
+    T = 4
+    qi = np.full(T, 1e-3)
+    dvdt = np.full(T, -2e-5)
+    qo = qi - dvdt
+    xi = np.array([0.4, 0.2])
+    acc = np.tile([1e-3, -2e-3, 5e-4, 0.0], (T, 1))  # V dC/dt [mol/s], invented
+    cout = (qi[:, None] * C_IN + xi @ NU.T - acc) / qo[:, None]
+    r = reconcile_cstr(qi, qo, np.tile(C_IN, (T, 1)), cout, NU, sigma_q_in=SIG_Q, sigma_q_out=SIG_Q,
+                       sigma_c_in=SIG_CIN, sigma_c_out=SIG_COUT, dvdt=dvdt, sigma_dvdt=1e-6,
+                       accumulation=acc, cov="full")
+    np.testing.assert_allclose(r.extent, np.tile(xi, (T, 1)), rtol=1e-10)
+    np.testing.assert_allclose(r.dvdt, dvdt, rtol=1e-10)
+    np.testing.assert_allclose(np.diagonal(r.cov_x, axis1=1, axis2=2), r.var_x, atol=1e-20)
+    assert r.redundant[0, -1]  # the level signal is checked by the volume balance

@@ -138,3 +138,32 @@ def test_closure_of_raw_data():
     np.testing.assert_allclose(r.imbalance[0], NJ_A @ NJ_Y, atol=1e-12)
     np.testing.assert_allclose(r.imbalance_sd[0], np.sqrt(np.diag(NJ_A @ NJ_A.T)), atol=1e-12)
     assert r.relative_imbalance[0, 0] == pytest.approx((101.91 - 64.45 - 34.65) / 100.22, rel=1e-3)
+
+
+def test_dependent_constraints_give_the_same_answer():
+    # A redundant balance (sum of the node balances) adds no information: same x, same dof
+    # (common practice, no source); exercises the pseudo-inverse path for singular A V A'.
+    A2 = np.vstack([NJ_A, NJ_A.sum(axis=0)])
+    r1, r2 = reconcile_linear(NJ_Y, 1.0, NJ_A), reconcile_linear(NJ_Y, 1.0, A2)
+    np.testing.assert_allclose(r2.x, r1.x, atol=1e-9)
+    assert r2.dof[0] == 4
+    assert r2.objective[0] == pytest.approx(r1.objective[0], rel=1e-9)
+
+
+def test_full_covariance_with_missing_values(rng):
+    y = YANG_X + YANG_SIGMA * rng.standard_normal((3, 8))
+    y[1, 2] = np.nan
+    r = reconcile_linear(y, YANG_SIGMA, YANG_A, cov="full")
+    np.testing.assert_allclose(np.diagonal(r.cov_x, axis1=1, axis2=2), r.var_x, atol=1e-12)
+    # reference at the step with the missing value: Monte Carlo-free linear propagation, the
+    # estimates are linear in the 7 measurements: x_hat = L y, Cov = L V L' (numerical L)
+    keep = [j for j in range(8) if j != 2]
+    V = np.diag(YANG_SIGMA[keep] ** 2)
+    Lmat = np.empty((8, 7))
+    for i in range(7):
+        e = np.zeros(8)
+        e[keep[i]] = 1.0
+        e[2] = np.nan
+        base = np.where(np.isnan(e), np.nan, 0.0)
+        Lmat[:, i] = reconcile_linear(e, YANG_SIGMA, YANG_A).x[0] - reconcile_linear(base, YANG_SIGMA, YANG_A).x[0]
+    np.testing.assert_allclose(r.cov_x[1], Lmat @ V @ Lmat.T, atol=1e-10)
