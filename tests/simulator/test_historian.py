@@ -210,13 +210,15 @@ def test_scenario_problems_reported_together(models):
     raw["faults"]["frozen"][0]["tag"] = "R210-TT-999"
     raw["units"][0]["schedule"][0]["temperature"] = "95 degC"                # above the 85 degC limit
     raw["units"][1]["catalysed"] = ["hydrolysis", "esterification"]
+    raw["units"][0]["schedule"][2]["level"] = 95.0                          # above the 90 % limit
     sc = scenario_from_dict(raw, source="bad.toml")
     from kinetrace.simulator import check_scenario
     with pytest.raises(ConfigError) as exc:
-        check_scenario(sc, list(models.values()))
+        check_scenario(sc, list(models.values()), {"R-210": (30.0, 90.0)})
     msg = str(exc.value)
-    assert "bad.toml: 3 configuration problems" in msg
+    assert "bad.toml: 4 configuration problems" in msg
     assert "R210-TT-999" in msg and "safe temperature limits" in msg and "esterification" in msg
+    assert "units[0].schedule[2].level: 95 % is outside the unit's safe level limits (30.0, 90.0) %" in msg
 
 
 def test_scenario_missing_keys(models):

@@ -33,12 +33,20 @@ DEFAULT_SCENARIO = Path(__file__).resolve().parents[3] / "sample_historian" / "s
 DEFAULT_CONFIG = Path(__file__).resolve().parents[3] / "config" / "demo_plant.toml"
 
 
-def check_scenario(scenario: Scenario, models) -> None:
+def check_scenario(scenario: Scenario, models, level_limits: dict | None = None) -> None:
     """Cross-check a scenario against the configured units; raise ConfigError listing every problem.
 
     Checked: each unit has a plan, catalysed reactions, extra feed species, dead-time and fault tags
-    exist, a level-controlled unit has a controller gain, every schedule set point lies inside the
-    unit's safe limits, every validation tag has a check-standard value.
+    exist, a level-controlled unit has a controller gain, every schedule and shutdown set point lies
+    inside the unit's safe limits (feed, temperature, level), every validation tag has a
+    check-standard value.
+
+    Parameters
+    ----------
+    scenario : Scenario
+    models : list of UnitModel
+    level_limits : dict of unit id -> (low, high), optional
+        Safe level limits [%] of the config (``units.limits.level``).
 
     >>> from kinetrace.config import load_config, unit_model
     >>> check_scenario(load_scenario(DEFAULT_SCENARIO), [unit_model(u) for u in load_config(DEFAULT_CONFIG).units])
@@ -70,6 +78,14 @@ def check_scenario(scenario: Scenario, models) -> None:
             if s.temperature is not None and not m.temperature_limits[0] <= s.temperature <= m.temperature_limits[1]:
                 problems.add(f"{where}.schedule[{k}].temperature", f"{s.temperature:.2f} K is outside the unit's "
                              f"safe temperature limits {m.temperature_limits} K")
+            lim = (level_limits or {}).get(m.id)
+            if s.level is not None and lim is not None and not lim[0] <= s.level <= lim[1]:
+                problems.add(f"{where}.schedule[{k}].level", f"{s.level:g} % is outside the unit's safe level "
+                             f"limits {tuple(lim)} %")
+        sd = p.shutdown
+        if sd is not None and not m.temperature_limits[0] <= sd.temperature <= m.temperature_limits[1]:
+            problems.add(f"{where}.shutdown.temperature", f"{sd.temperature:.2f} K is outside the unit's "
+                         f"safe temperature limits {m.temperature_limits} K")
     for p_id in by_id:
         if p_id not in [p.unit_id for p in scenario.units]:
             problems.add("units", f"no plan for configured unit {p_id!r}")
@@ -200,7 +216,7 @@ def generate_sample_historian(config_path, out_dir, *, scenario_path=None, scena
         sc = replace(sc, seed=sc.seed if seed is None else int(seed), days=sc.days if days is None else float(days))
     cfg = load_config(config_path)
     models = [unit_model(u) for u in cfg.units]
-    check_scenario(sc, models)
+    check_scenario(sc, models, {u.id: u.limits.level for u in cfg.units})
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     duration = sc.days * 86400.0
