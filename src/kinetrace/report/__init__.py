@@ -1,1 +1,78 @@
-"""kinetrace.report."""
+"""kinetrace.report: the daily report, built from the results store only.
+
+:func:`build_report` writes two files for one production day:
+
+* ``kinetrace-day-YYYY-MM-DD.html``: one self-contained page for operations (inline CSS
+  and SVG charts, no scripts, no external links): status per unit, production against
+  target for the day and the last 7 days, the gap split into its four causes, the
+  day's alarms in plain words, the forecast, any what-if settings (always under the
+  cautions text, :data:`CAUTIONS`), and the newest fitted parameters;
+* ``kinetrace-day-YYYY-MM-DD.xlsx``: the same numbers as stored, sheet by sheet.
+
+Nothing is recomputed: every number is a stored value or a sum of stored daily rows,
+and the page names the row of each number (``data-src``).
+
+>>> from kinetrace.store import open_store
+>>> store = open_store("sqlite://")
+>>> collect(store)
+Traceback (most recent call last):
+...
+kinetrace.report.content.ReportError: the results store holds no daily production rows; run the daily check first
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+from pathlib import Path
+
+from ..store import Store
+from .content import STATUSES, Figure, ReportContent, ReportError, UnitReport, attention_reasons, collect
+from .page import render_html
+from .wording import CAUTIONS
+from .workbook import SHEETS, write_workbook
+
+
+@dataclass(frozen=True)
+class ReportFiles:
+    """Paths of the files written by :func:`build_report`, and what they report."""
+
+    html: Path
+    xlsx: Path
+    content: ReportContent
+
+
+def build_report(store: Store, out_dir, day=None, *, tz: str = "UTC", site: str = "",
+                 units=None) -> ReportFiles:
+    """Write the HTML page and the XLSX workbook of one production day.
+
+    Parameters
+    ----------
+    store : Store
+        The results store (see :func:`kinetrace.store.open_store`).
+    out_dir : path
+        Folder for the two files; created if missing.
+    day : date or str, optional
+        Production day; default the latest day with a daily production row.
+    tz : str
+        Site time zone (IANA name) used for the day's alarm window.
+    site : str
+        Site name shown in the heading.
+    units : list of str, optional
+        Units to report; default all.
+
+    Returns
+    -------
+    ReportFiles
+    """
+    content = collect(store, day, tz=tz, site=site, units=units)
+    out = Path(out_dir)
+    out.mkdir(parents=True, exist_ok=True)
+    stem = f"kinetrace-day-{content.day.isoformat()}"
+    html = out / f"{stem}.html"
+    html.write_text(render_html(content), encoding="utf-8")
+    xlsx = write_workbook(content, out / f"{stem}.xlsx")
+    return ReportFiles(html=html, xlsx=xlsx, content=content)
+
+
+__all__ = ["CAUTIONS", "SHEETS", "STATUSES", "Figure", "ReportContent", "ReportError", "ReportFiles",
+           "UnitReport", "attention_reasons", "build_report", "collect", "render_html", "write_workbook"]

@@ -1,0 +1,97 @@
+"""Plain-language texts of the report: numbers, alarms, forecasts, what-if settings, cautions."""
+
+from __future__ import annotations
+
+import math
+
+import pandas as pd
+
+#: Shown with every what-if setting, in the HTML page and in the workbook.
+CAUTIONS = (
+    "These settings are estimates from a fitted model, not instructions. Before any change, check it "
+    "against the unit's safe operating envelope and its relief and runaway studies, and take it through "
+    "the site's management-of-change procedure. Site procedures, local codes and licensed engineering "
+    "practice take precedence over anything shown here."
+)
+
+KIND_WORDS = {
+    "drift": "Gradual drift",
+    "cusum": "Gradual drift (CUSUM)",
+    "ewma": "Gradual drift (EWMA)",
+    "step": "Sudden step",
+}
+
+LEVER_WORDS = {"temperature": "temperature", "feed_flow": "feed rate", "residence_time": "residence time"}
+
+
+def number(value: float, decimals: int = 0) -> str:
+    """A number with thousands separators, or an em dash when unknown.
+
+    >>> number(24012.6), number(-3.14159, 2), number(float("nan"))
+    ('24,013', '-3.14', '—')
+    """
+    if value is None or not math.isfinite(value):
+        return "—"
+    return f"{value:,.{decimals}f}"
+
+
+def sig(value: float, digits: int = 4) -> str:
+    """A number to ``digits`` significant figures (general format), em dash when unknown.
+
+    >>> sig(6.0123e-4), sig(343.15)
+    ('0.0006012', '343.1')
+    """
+    if value is None or not math.isfinite(value):
+        return "—"
+    return f"{value:.{digits}g}"
+
+
+def when(ts) -> str:
+    """Short UTC time of an event.
+
+    >>> when(pd.Timestamp("2026-11-30T05:07Z"))
+    '30 Nov 05:07 UTC'
+    """
+    if ts is None or pd.isna(ts):
+        return "unknown time"
+    return pd.Timestamp(ts).tz_convert("UTC").strftime("%d %b %H:%M UTC").lstrip("0")
+
+
+def alarm_sentence(row) -> str:
+    """One alarm in plain words (kind, variable, onset, detection, state; size and evidence apart).
+
+    >>> alarm_sentence({"kind": "step", "variable": "R210-TT-101", "onset": pd.Timestamp("2026-11-30T07:00Z"),
+    ...                 "detected": pd.Timestamp("2026-11-30T07:30Z"), "state": "open", "closed": None})
+    'Sudden step on R210-TT-101, began about 30 Nov 07:00 UTC, detected 30 Nov 07:30 UTC; still open.'
+    """
+    kind = KIND_WORDS.get(row["kind"], row["kind"].replace("_", " ").capitalize())
+    onset = "" if pd.isna(row["onset"]) else f", began about {when(row['onset'])}"
+    state = "still open" if row["state"] == "open" else f"cleared {when(row['closed'])}"
+    return f"{kind} on {row['variable']}{onset}, detected {when(row['detected'])}; {state}."
+
+
+def whatif_sentence(row) -> str:
+    """One what-if lever in plain words, within its safe limits."""
+    lever = LEVER_WORDS.get(row["lever"], row["lever"].replace("_", " "))
+    u = row["unit_of_measure"]
+    limits = f"safe limits {sig(row['safe_low'], 5)}–{sig(row['safe_high'], 5)} {u}".rstrip()
+    if row["restores_target"]:
+        return (f"Estimated to restore the target: {lever} from {sig(row['current_value'], 5)} to "
+                f"{sig(row['proposed_value'], 5)} {u} ({limits}).")
+    return f"No {lever} within the {limits} is estimated to meet the target."
+
+
+def gap_sentence(gap: float, parts: dict[str, float]) -> str:
+    """The day's gap and its four causes in plain words.
+
+    >>> gap_sentence(1000.0, {"gap_feed_kg": 600.0, "gap_conversion_kg": 400.0,
+    ...                       "gap_downtime_kg": 0.0, "gap_data_kg": 0.0})
+    'Short by 1,000 kg: feed below plan 600 kg, conversion below expectation 400 kg.'
+    """
+    if not math.isfinite(gap):
+        return "Gap unknown (no production data)."
+    names = {"gap_feed_kg": "feed below plan", "gap_conversion_kg": "conversion below expectation",
+             "gap_downtime_kg": "downtime", "gap_data_kg": "data too poor to judge"}
+    shown = [f"{names[k]} {number(v)} kg" for k, v in parts.items() if math.isfinite(v) and round(v) != 0]
+    head = f"Short by {number(gap)} kg" if gap > 0 else f"Ahead by {number(-gap)} kg"
+    return head + (": " + ", ".join(shown) + "." if shown else ".")
