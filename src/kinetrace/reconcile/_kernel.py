@@ -60,6 +60,23 @@ def _projection(azs):
         yield idx, P, pinv, observable
 
 
+_CACHE: dict = {}
+
+
+def _projection_cached(azs):
+    """:func:`_projection` of (m, nz, K) ``azs``; memoised when shared by all steps (K = 1),
+    as in the inner iterations of the CSTR problem where it is the same for every call."""
+    if azs.shape[2] != 1:
+        return list(_projection(np.moveaxis(azs, 2, 0)))
+    key = (azs.shape, azs.tobytes())
+    hit = _CACHE.get(key)
+    if hit is None:
+        if len(_CACHE) > 64:
+            _CACHE.clear()
+        hit = _CACHE[key] = list(_projection(np.moveaxis(azs, 2, 0)))
+    return hit
+
+
 def _pinv_sym(S):
     """Inverse (or pseudo-inverse for rank-deficient steps) of stacked SPD ``S`` and its rank."""
     k, p, _ = S.shape
@@ -230,7 +247,7 @@ def wls_kernel(y, var, A, Az=None, b=None, full_cov=False, minimal=False):
     dtypes = {"observable": bool, "redundant": bool, "dof": int}
     out = {key: np.empty(shapes[key] + (k,), dtypes.get(key, float)) for key in keys}
 
-    for idx, P, pinv, obs in _projection(np.moveaxis(Azs, 2, 0)):
+    for idx, P, pinv, obs in _projection_cached(Azs):
         P, pinv, obs = np.moveaxis(P, 0, 2), np.moveaxis(pinv, 0, 2), np.moveaxis(obs, 0, 1)
         sel = (lambda a: a if a.shape[-1] == 1 else a[..., idx])
         yk, vk = y[:, idx], var[:, idx]

@@ -215,13 +215,16 @@ class CSTRBalances:
             self.check_observable(status)
         T = y.shape[0]
         groups = group_patterns(status)
-        parts = []
+        out = None
         for start in range(0, T, chunk_size):  # loop over blocks of steps, not steps
             sl = slice(start, min(T, start + chunk_size))
             acc = None if accumulation is None else accumulation[sl]
             grp = (groups[0], groups[1][sl])
-            parts.append(self._iterate(y[sl], sigma[sl], status[sl], acc, grp, max_iter, tol, cov == "full"))
-        out = {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
+            part = self._iterate(y[sl], sigma[sl], status[sl], acc, grp, max_iter, tol, cov == "full")
+            if out is None:
+                out = {k: np.empty((T,) + a.shape[1:], a.dtype) for k, a in part.items()}
+            for k, a in part.items():
+                out[k][sl] = a
         conv, iters = out.pop("converged"), out.pop("iterations")
         if nonconvergence == "raise" and not conv.all():
             bad = np.flatnonzero(~conv)
