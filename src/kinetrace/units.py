@@ -26,7 +26,9 @@ import pint
 from .errors import KinetraceError
 
 #: The registry every kinetrace module uses.
-ureg = pint.UnitRegistry(cache_folder=None)
+# pint's own "bbl" is the 31.5-gallon liquid barrel; the trade's bbl (and ours) is the
+# 42-gallon petroleum barrel, so it is redefined on purpose, without pint's warning.
+ureg = pint.UnitRegistry(cache_folder=None, on_redefinition="ignore")
 ureg.define("lbmol = 453.59237 * mol = lb_mol")
 ureg.define("gpm = US_liquid_gallon / minute")
 ureg.define("bbl = 42 * US_liquid_gallon = oil_bbl")

@@ -8,6 +8,7 @@ UnitModel and arrays; they never read the TOML file.
 
 from __future__ import annotations
 
+import re
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -76,7 +77,8 @@ def tag_sigma(tag: Tag, kind: str) -> tuple[float, float]:
         return float(s[:-1]) / 100.0, 0.0
     if kind == "temperature":
         # an uncertainty is a temperature difference: 0.3 degC is 0.3 K, not 273.45 K
-        s = s.replace("degC", "K").replace("degF", "delta_degF")
+        s = re.sub(r"(?<!delta_)degC", "K", s)
+        s = re.sub(r"(?<!delta_)degF", "delta_degF", s)
     return 0.0, parse_quantity(s, kind)
 
 

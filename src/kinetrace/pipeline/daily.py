@@ -113,7 +113,7 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
     (list of UnitResult, Path of the output folder)
     """
     cfg = load_config(config_path)
-    out = Path(out_dir) if out_dir else resolve_path(config_path, cfg.analysis.output_dir)
+    out = (Path(out_dir) if out_dir else resolve_path(config_path, cfg.analysis.output_dir)).resolve()
     out.mkdir(parents=True, exist_ok=True)
     results = []
     for i, unit in enumerate(cfg.units):

@@ -1,11 +1,14 @@
 """From per-tag readings to one value per measured quantity ("role") of a unit.
 
 A unit may have several tags for the same quantity (an online analyzer and the
-laboratory for the outlet methyl acrylate, say). Where more than one is valid at
-a time step they are combined by the inverse-variance weighted mean, the
-minimum-variance unbiased combination of independent measurements (Taylor, J. R.
-1997, An Introduction to Error Analysis, 2nd ed., Sec. 7.2); its standard
-deviation comes with it.
+laboratory for the outlet methyl acrylate, say). Online tags (continuous and
+analyzer) come first: where more than one is valid at a time step they are
+combined by the inverse-variance weighted mean, the minimum-variance unbiased
+combination of independent measurements (Taylor, J. R. 1997, An Introduction to
+Error Analysis, 2nd ed., Sec. 7.2), whose standard deviation comes with it.
+Laboratory tags fill the time steps where no online value is valid: a lab result
+is carried forward for hours, so beside a live analyzer it is the staler value.
+(Reconciliation, downstream, weighs all of them against the balances.)
 
 Role columns of the frame returned by :func:`role_frame` (all SI):
 
@@ -53,6 +56,21 @@ def _tag_sigma_array(tag, values: np.ndarray) -> np.ndarray:
     return np.where(sig > 0, sig, np.maximum(0.01 * np.abs(values), 1e-12)) if tag.sigma is None else sig
 
 
+def _combine(tags, values: pd.DataFrame, valid: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+    """Inverse-variance weighted mean of the valid readings of several tags, and its sigma."""
+    num = np.zeros(len(values))
+    den = np.zeros(len(values))
+    for tag in tags:
+        v = values[tag.tag].to_numpy(dtype=float)
+        ok = valid[tag.tag].to_numpy(dtype=bool) & np.isfinite(v)
+        s = _tag_sigma_array(tag, v)
+        w = np.where(ok, 1.0 / np.where(ok, s, 1.0) ** 2, 0.0)
+        num += np.where(ok, w * np.nan_to_num(v), 0.0)
+        den += w
+    with np.errstate(divide="ignore", invalid="ignore"):
+        return np.where(den > 0, num / den, np.nan), np.where(den > 0, 1.0 / np.sqrt(den), np.nan)
+
+
 def role_frame(values: pd.DataFrame, valid: pd.DataFrame, volume: pd.Series, model: UnitModel) -> pd.DataFrame:
     """Combine per-tag SI values into one column per role (see module docstring).
 
@@ -78,18 +96,20 @@ def role_frame(values: pd.DataFrame, valid: pd.DataFrame, volume: pd.Series, mod
         if tag.tag in values.columns:
             groups.setdefault(role_column(tag.role, tag.species), []).append(tag)
     for col, tags in groups.items():
-        num = np.zeros(len(values))
-        den = np.zeros(len(values))
-        for tag in tags:
-            v = values[tag.tag].to_numpy(dtype=float)
-            ok = valid[tag.tag].to_numpy(dtype=bool) & np.isfinite(v)
-            s = _tag_sigma_array(tag, v)
-            w = np.where(ok, 1.0 / np.where(ok, s, 1.0) ** 2, 0.0)
-            num += np.where(ok, w * np.nan_to_num(v), 0.0)
-            den += w
-        with np.errstate(divide="ignore", invalid="ignore"):
-            out[col] = np.where(den > 0, num / den, np.nan)
-            out[f"sigma:{col}"] = np.where(den > 0, 1.0 / np.sqrt(den), np.nan)
+        value = np.full(len(values), np.nan)
+        sigma = np.full(len(values), np.nan)
+        # online instruments first; the laboratory fills the gaps (its values are carried
+        # forward for hours, so where an online reading exists it is the fresher one)
+        for rank in (0, 1):
+            ranked = [t for t in tags if (t.sampling == "lab") == bool(rank)]
+            if not ranked:
+                continue
+            v_r, s_r = _combine(ranked, values, valid)
+            fill = ~np.isfinite(value) & np.isfinite(v_r)
+            value = np.where(fill, v_r, value)
+            sigma = np.where(fill, s_r, sigma)
+        out[col] = value
+        out[f"sigma:{col}"] = sigma
     out["volume"] = volume.reindex(values.index).to_numpy(dtype=float)
     for sp in model.species:
         col = role_column("feed_conc", sp)
