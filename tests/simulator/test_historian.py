@@ -164,6 +164,7 @@ def test_faults_as_recorded(csv, facts, truth):
     assert fz["rows"] == 5 * 60
     assert ((win["quality"] == "OK") | (win["quality"] == "BAD")).all()
     assert win.loc[win["quality"] == "OK", "value"].nunique() == 1          # repeated exactly
+    assert (win.loc[win["quality"] == "OK", "value"] == fz["value"]).all()  # the value the facts record
     for f in by_kind["dropout"]:
         d = tag_rows(csv, f["tag"])
         assert not ((d["timestamp"] >= f["window_start"]) & (d["timestamp"] < f["window_end"])).any()

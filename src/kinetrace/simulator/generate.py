@@ -26,7 +26,7 @@ from .faults import apply_faults
 from .plant import TRUTH_COLUMNS, simulate_unit, truth_frame
 from .scenario import Scenario, load_scenario
 from .sensors import read_tag, sensor_sigma
-from .writers import readings_frame, write_csv, write_json, write_sqlite, write_truth
+from .writers import readings_frame, round_significant, write_csv, write_json, write_sqlite, write_truth
 
 #: The shipped scenario and demo plant (source tree layout: src/kinetrace/simulator -> repository root).
 DEFAULT_SCENARIO = Path(__file__).resolve().parents[3] / "sample_historian" / "scenario.toml"
@@ -247,6 +247,8 @@ def generate_sample_historian(config_path, out_dir, *, scenario_path=None, scena
         paths["sqlite"] = write_sqlite(frame, out_dir / f"{stem}.sqlite", cfg.source.table)
         timing["sqlite"] = time.perf_counter() - t0
     for e in fault_log:
+        if "value" in e:     # as written to the files
+            e["value"] = float(round_significant([e["value"]], sc.significant_digits)[0])
         for key in ("window_start", "window_end"):
             if f"{key}_s" in e:
                 v = e.pop(f"{key}_s")
