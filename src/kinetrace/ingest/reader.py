@@ -58,14 +58,20 @@ def find_unit(cfg: PlantConfig, unit: UnitModel | Unit | str) -> tuple[int, Unit
     raise ConfigError("config", [Problem("units", f"no unit {uid!r}; units are {[u.id for u in cfg.units]!r}")])
 
 
+#: Longest default hold of a continuous reading (when no max_gap is configured). [s]
+DEFAULT_HOLD_CAP = 6 * 3600.0
+
+
 def _hold_limit(tag: Tag, source, grid: float, ts: np.ndarray) -> float:
+    """How long a continuous reading holds: configured, else 5 sampling intervals (at least one grid
+    step, at most max(grid, DEFAULT_HOLD_CAP)). [s]"""
     if tag.max_gap is not None:
         return tag.max_gap
     if source.max_gap is not None:
         return source.max_gap
     if ts.size > 1:
         med = float(np.median(np.diff(ts))) / 1e9
-        return max(grid, 5.0 * med)
+        return min(max(grid, 5.0 * med), max(grid, DEFAULT_HOLD_CAP))
     return grid
 
 
@@ -73,7 +79,7 @@ def _lookback(unit: Unit, source, grid: float) -> float:
     lb = grid
     for t in unit.tags:
         if t.sampling == "continuous":
-            lb = max(lb, t.max_gap or source.max_gap or grid)
+            lb = max(lb, t.max_gap or source.max_gap or max(grid, DEFAULT_HOLD_CAP))
         else:
             lb = max(lb, t.max_age or 0.0)
         lb = max(lb, t.dead_time + grid)
@@ -81,7 +87,7 @@ def _lookback(unit: Unit, source, grid: float) -> float:
 
 
 def read_unit(cfg: PlantConfig, unit: UnitModel | Unit | str, *, config_path, since=None, until=None,
-              grid: float | None = None, engine=None) -> UnitData:
+              grid: float | None = None, engine=None, complete_only: bool = False) -> UnitData | None:
     """Read, screen, convert and align one unit's historian readings.
 
     Parameters
@@ -98,10 +104,14 @@ def read_unit(cfg: PlantConfig, unit: UnitModel | Unit | str, *, config_path, si
         Grid step. [s] Default ``cfg.analysis.grid``.
     engine : sqlalchemy.Engine, optional
         An engine to use for a SQL source (tests, connection pools).
+    complete_only : bool
+        Without ``until``: end the grid before the interval that holds the latest
+        reading (it is still filling); used by incremental pulls.
 
     Returns
     -------
     UnitData
+        Or None when ``complete_only`` leaves no complete interval after ``since``.
 
     Raises
     ------
@@ -131,7 +141,8 @@ def read_unit(cfg: PlantConfig, unit: UnitModel | Unit | str, *, config_path, si
         report = read_csv_source(resolve_path(config_path, src.path), src, col, {t.tag: t for t in u.tags})
     else:
         report = read_sql_source(src, col, [t.tag for t in u.tags], lo, hi, base_dir=base, engine=engine)
-    return assemble(cfg, u, model, scales, col, report, grid=grid, since_ns=since_ns, until_ns=until_ns)
+    return assemble(cfg, u, model, scales, col, report, grid=grid, since_ns=since_ns, until_ns=until_ns,
+                    complete_only=complete_only)
 
 
 def _resolve_repeated_hour(ts, fate, second):
@@ -152,8 +163,13 @@ def _resolve_repeated_hour(ts, fate, second):
 
 
 def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dict, *, grid: float,
-             since_ns: int = NAT, until_ns: int = NAT) -> UnitData:
-    """Screen and align the collected readings of a unit (the pure part of :func:`read_unit`)."""
+             since_ns: int = NAT, until_ns: int = NAT, complete_only: bool = False) -> UnitData | None:
+    """Screen and align the collected readings of a unit (the pure part of :func:`read_unit`).
+
+    With ``complete_only`` and no ``until``, the grid ends where the interval holding the
+    latest reading starts; None if that leaves no interval after ``since``.
+    """
+    shift_max = int(max((t.dead_time for t in u.tags), default=0.0) * 1e9)
     src = cfg.source
     names = col.names
     per_tag = []
@@ -171,6 +187,13 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     else:
         cand = [g[0] for g in good_times if g.size]
         first = min(cand) if cand else NAT
+    if until_ns == NAT and complete_only:
+        cand = [g[-1] for g in good_times if g.size]
+        if cand:   # end at the start of the interval holding the latest reading: it is still filling
+            step = int(round(grid * 1e9))
+            until_ns = (max(cand) - shift_max) // step * step
+            if first != NAT and until_ns <= first:
+                return None
     if until_ns != NAT:
         last = until_ns - 1
     else:

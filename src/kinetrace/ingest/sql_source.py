@@ -136,6 +136,7 @@ def read_sql_source(source: Source, collector: Collector, tags: list[str], since
         engine = sa.create_engine(url)
     stmt, params = build_statement(source, tags, since_ns, until_ns)
     counts = {"rows": 0, "chunks": 0}
+    dbapi_error = getattr(getattr(engine.dialect, "dbapi", None), "Error", sa.exc.SQLAlchemyError)
     try:
         with engine.connect() as conn:
             if USE_COPY and conn.dialect.name == "postgresql" and conn.dialect.driver == "psycopg":
@@ -147,7 +148,7 @@ def read_sql_source(source: Source, collector: Collector, tags: list[str], since
                     _add_rows(collector, names, part, source)
                     counts["rows"] += len(part)
                     counts["chunks"] += 1
-    except sa.exc.SQLAlchemyError as exc:
+    except (sa.exc.SQLAlchemyError, dbapi_error) as exc:
         raise IngestError(name, [Problem(f"table {source.table!r}" if not source.query else "source.query",
                                          f"cannot read readings: {_explain(exc, url)}")]) from None
     finally:
