@@ -306,4 +306,36 @@ def resolve_path(config_path: str | Path, relative: str) -> Path:
     return p if p.is_absolute() else (Path(config_path).resolve().parent / p)
 
 
-__all__ = ["load_config", "validate_config", "parse_target_rate", "resolve_path", "KinetraceError", "SI_UNITS"]
+__all__ = ["load_config", "validate_config", "parse_target_rate", "resolve_path", "store_url", "KinetraceError", "SI_UNITS"]
+
+
+def store_url(cfg: PlantConfig, config_path: str | Path, environ=None) -> str:
+    """SQLAlchemy URL of the results store of a config.
+
+    Taken, in this order, from the environment variable named by ``store.url_env``, the
+    environment variable ``KINETRACE_STORE_URL``, or ``store.url``; default a SQLite file
+    ``results.sqlite`` in ``analysis.output_dir``. A relative SQLite path is resolved
+    against the config file's folder (not the working directory).
+
+    >>> from types import SimpleNamespace as NS
+    >>> cfg = NS(store=NS(url="sqlite:///../out/results.sqlite", url_env=None), analysis=NS(output_dir="out"))
+    >>> store_url(cfg, "/plant/config/plant.toml", environ={})
+    'sqlite:////plant/out/results.sqlite'
+    """
+    import os
+
+    environ = os.environ if environ is None else environ
+    url = None
+    if cfg.store.url_env and environ.get(cfg.store.url_env):
+        url = environ[cfg.store.url_env]
+    elif environ.get("KINETRACE_STORE_URL"):
+        url = environ["KINETRACE_STORE_URL"]
+    elif cfg.store.url:
+        url = cfg.store.url
+    else:
+        url = "sqlite:///" + str(Path(cfg.analysis.output_dir) / "results.sqlite")
+    if url.startswith("sqlite:///") and not url.startswith("sqlite:////") and url != "sqlite://":
+        rel = url[len("sqlite:///"):]
+        base = Path(config_path).resolve().parent
+        url = "sqlite:///" + str((base / rel).resolve()) if not Path(rel).is_absolute() else url
+    return url

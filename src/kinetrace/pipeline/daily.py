@@ -93,9 +93,47 @@ def output_frame(result: UnitResult) -> pd.DataFrame:
     return out
 
 
+def _series_for_store(series: pd.DataFrame) -> tuple[pd.DataFrame, dict[str, str]]:
+    """Numeric columns of a back-calculated series and their units, as the store keeps them."""
+    from .backcalc import COLUMNS
+
+    frame = series.copy()
+    if "rate_basis" in frame:
+        frame["rate_basis_extents"] = (frame.pop("rate_basis") == "extents").astype(float)
+    frame["steady"] = frame["steady"].astype(float)
+    units = {}
+    for c in frame.columns:
+        base = c.split(":")[0]
+        units[c] = {"bool": "-", "text": "-"}.get(COLUMNS.get(base, "-"), COLUMNS.get(base, "-"))
+    units["rate_basis_extents"] = "-"
+    return frame, units
+
+
+def write_results(store, results: list[UnitResult], *, window, fingerprint: str) -> int:
+    """Write one run's results of every unit to the store, as one transaction.
+
+    Returns the run id.
+    """
+    with store.write_run(window, config_fingerprint=fingerprint) as run:
+        for res in results:
+            uid = res.model.id
+            frame, units = _series_for_store(res.series)
+            run.write_series(uid, frame, units=units)
+            q = res.quality.select_dtypes("number")
+            run.write_quality(uid, q)
+            fresh = res.series.attrs.get("fresh_k_ref", {})
+            basis = res.series.attrs.get("fresh_basis", {})
+            if fresh:
+                run.write_parameters(uid, pd.DataFrame([
+                    {"name": f"k_ref_fresh:{rid}", "value": v, "unit_of_measure": "SI",
+                     "method": basis.get(rid, "")} for rid, v in fresh.items()]))
+            run.set_watermark(uid, res.series.index[-1])
+        return run.run_id
+
+
 def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str | Path | None = None,
-              progress=None) -> tuple[list[UnitResult], Path]:
-    """Run the daily check on every unit of a config and write one CSV per unit.
+              store: str | None = "config", progress=None) -> tuple[list[UnitResult], Path]:
+    """Run the daily check on every unit of a config, write one CSV per unit and fill the results store.
 
     Parameters
     ----------
@@ -105,6 +143,9 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
         Period to read (UTC unless an offset is given); default everything.
     out_dir : path, optional
         Where the CSV files go; default ``analysis.output_dir`` of the config.
+    store : str or None
+        ``"config"`` (default): the store named by the config (see
+        :func:`kinetrace.config.store_url`); another string: a SQLAlchemy URL; None: no store.
     progress : callable, optional
         Called with (unit id, index, count) before each unit.
 
@@ -112,6 +153,9 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
     -------
     (list of UnitResult, Path of the output folder)
     """
+    from .. import store as result_store
+    from ..config import store_url
+
     cfg = load_config(config_path)
     out = (Path(out_dir) if out_dir else resolve_path(config_path, cfg.analysis.output_dir)).resolve()
     out.mkdir(parents=True, exist_ok=True)
@@ -126,7 +170,28 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
         log.info("unit %s: %d rows written to %s", model.id, len(res.series), out)
         results.append(res)
     pd.DataFrame([r.summary for r in results]).to_csv(out / "summary.csv", index=False, float_format="%.6g")
+    if store is not None:
+        url = store_url(cfg, config_path) if store == "config" else store
+        grid = pd.Timedelta(seconds=cfg.analysis.grid)
+        window = (min(r.series.index[0] for r in results), max(r.series.index[-1] for r in results) + grid)
+        db = result_store.open_store(url)
+        try:
+            run_id = write_results(db, results, window=window,
+                                   fingerprint=result_store.fingerprint(Path(config_path).read_bytes()))
+        finally:
+            db.close()
+        log.info("results of run %s written to the store %s", run_id, _redact(url))
     return results, out
+
+
+def _redact(url: str) -> str:
+    """A URL with its password hidden, for logs."""
+    from sqlalchemy.engine import make_url
+
+    try:
+        return make_url(url).render_as_string(hide_password=True)
+    except Exception:  # noqa: BLE001 - a malformed URL is logged as such, never echoed
+        return "<store url>"
 
 
 def _safe(name: str) -> str:
