@@ -86,6 +86,7 @@ def test_missing_values_become_unmeasured_at_that_step(rng):
     assert r.x[2, 3] == pytest.approx(zr[0], abs=1e-8)
     assert not r.measured[2, 3] and np.isnan(r.adjustment[2, 3])
     assert r.dof.tolist() == [4, 4, 3, 4, 2, 4]
+    assert r.missing_counts == {"x[1]": 1, "x[3]": 1, "x[6]": 1}
     assert np.all(r.observable_x)
     # other steps are unaffected by the missing values elsewhere
     np.testing.assert_allclose(r.x[0], reconcile_linear(y[0], YANG_SIGMA, YANG_A).x[0], rtol=1e-12)
@@ -167,3 +168,13 @@ def test_full_covariance_with_missing_values(rng):
         base = np.where(np.isnan(e), np.nan, 0.0)
         Lmat[:, i] = reconcile_linear(e, YANG_SIGMA, YANG_A).x[0] - reconcile_linear(base, YANG_SIGMA, YANG_A).x[0]
     np.testing.assert_allclose(r.cov_x[1], Lmat @ V @ Lmat.T, atol=1e-10)
+
+
+def test_per_step_right_hand_side(rng):
+    # b given per step (T, m) equals solving each step with its own b (Kuehn & Davidson 1961)
+    b = rng.normal(size=(4, 4))
+    y = YANG_X + YANG_SIGMA * rng.standard_normal((4, 8))
+    r = reconcile_linear(y, YANG_SIGMA, YANG_A, b=b)
+    for t in range(4):
+        xr, _, _ = cvxpy_wls(y[t], YANG_SIGMA, YANG_A, None, b[t])
+        assert np.max(np.abs(r.x[t] - xr) / YANG_SIGMA) < 1e-8

@@ -30,6 +30,7 @@ def build_result(y, sigma, status, out, names, unknown_names, constraint_names,
     return Reconciliation(
         y=y, sigma=sigma, x=out["x"], var_x=out["var_x"], adjustment=adj,
         var_adjustment=out["var_adj"], z=out["z"], var_z=out["var_z"], measured=measured,
+        missing=status == 1,
         redundant=out["redundant"], observable_x=out["observable_x"],
         observable_z=out["observable_z"], objective=out["objective"], dof=out["dof"],
         imbalance=out["imbalance"], imbalance_sd=out["imbalance_sd"],

@@ -36,7 +36,9 @@ class Reconciliation:
     var_z : ndarray (T, nz)
         Variance of ``z``. [their units squared]
     measured : ndarray (T, n) of bool
-        Whether each variable was measured at each step.
+        Whether each variable was measured (finite value, sigma > 0) at each step.
+    missing : ndarray (T, n) of bool
+        Value was NaN at that step (treated as unmeasured there; never dropped).
     redundant : ndarray (T, n) of bool
         Measured and redundant (its column of P A_y is non-zero).
     observable_x : ndarray (T, n) of bool
@@ -76,6 +78,7 @@ class Reconciliation:
     z: np.ndarray
     var_z: np.ndarray
     measured: np.ndarray
+    missing: np.ndarray
     redundant: np.ndarray
     observable_x: np.ndarray
     observable_z: np.ndarray
@@ -113,6 +116,12 @@ class Reconciliation:
         """Imbalance divided by its expected standard deviation; NaN where that is zero. [-]"""
         s = self.imbalance_sd
         return np.where(s > 0, self.imbalance / np.where(s > 0, s, 1.0), np.nan)
+
+    @property
+    def missing_counts(self) -> dict:
+        """Number of missing steps per variable name (only those with any). [-]"""
+        counts = self.missing.sum(axis=0)
+        return {nm: int(c) for nm, c in zip(self.names, counts) if c}
 
     def __len__(self) -> int:
         return self.x.shape[0]
