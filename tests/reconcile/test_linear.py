@@ -178,3 +178,18 @@ def test_per_step_right_hand_side(rng):
     for t in range(4):
         xr, _, _ = cvxpy_wls(y[t], YANG_SIGMA, YANG_A, None, b[t])
         assert np.max(np.abs(r.x[t] - xr) / YANG_SIGMA) < 1e-8
+
+
+def test_closure_table_flags_a_leak():
+    from kinetrace.reconcile import closure_table
+
+    y = np.vstack([NJ_Y, NJ_Y])
+    y[1, 5] -= 10.0  # 10 units lost at the mixer (balance 4) at step 1
+    r = reconcile_linear(y, 1.0, NJ_A, constraint_names=["split", "exch", "bypass", "mix"])
+    tab = closure_table(r, index=["t0", "t1"])
+    assert len(tab) == 8 and set(tab.columns) >= {"imbalance", "sd", "standardized", "flagged"}
+    # raw imbalance of the mixer: F4 + F5 - F6 (common practice, no source)
+    row = tab[(tab.step == "t1") & (tab.balance == "mix")].iloc[0]
+    assert row.imbalance == pytest.approx(64.20 + 36.44 - 88.88, abs=1e-9)
+    assert row.sd == pytest.approx(np.sqrt(3.0), rel=1e-12)
+    assert row.flagged and not tab[tab.step == "t0"].flagged.any()

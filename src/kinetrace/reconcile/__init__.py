@@ -32,7 +32,14 @@ Classification
 
 Closure
     Every result carries ``imbalance``, ``imbalance_sd``, ``imbalance_scale`` (T, m) and
-    the properties ``relative_imbalance`` and ``standardized_imbalance``.
+    the properties ``relative_imbalance`` and ``standardized_imbalance``;
+    ``closure_table(result, index=None, alpha=0.05) -> pandas.DataFrame`` lists them per
+    step and balance with a Sidak-corrected flag.
+
+Missing data
+    NaN entries are never dropped: they become unmeasured at that step, are estimated
+    where observable, and are reported in ``result.missing`` / ``result.missing_counts``.
+    Non-converged steps are flagged in ``result.converged``.
 
 Gross errors
     ``global_test(result, alpha=0.05) -> GlobalTest`` (chi-square, dof = rank),
@@ -56,6 +63,7 @@ Errors
 
 from ._errors import ConvergenceError, ReconciliationError, UnobservableError
 from .classify import Classification, classify_variables
+from .closure import closure_table
 from .cstr import CSTRBalances, CSTRReconciliation, reconcile_cstr
 from .gross_errors import (GlobalTest, MeasurementTest, SerialElimination, global_test,
                            measurement_test, serial_elimination, sidak_critical_value)
@@ -67,7 +75,7 @@ from .uncertainty import SigmaEstimate, estimate_sigma, sigma_methods
 __all__ = [
     "BiasEvent", "CSTRBalances", "CSTRReconciliation", "Classification", "ConvergenceError",
     "GlobalTest", "MeasurementTest", "Reconciliation", "ReconciliationError", "SerialElimination",
-    "SigmaEstimate", "UnobservableError", "classify_variables", "cusum", "detect_persistent_bias",
+    "SigmaEstimate", "UnobservableError", "classify_variables", "closure_table", "cusum", "detect_persistent_bias",
     "estimate_sigma", "global_test", "measurement_test", "reconcile_cstr", "reconcile_linear",
     "serial_elimination", "sidak_critical_value", "sigma_methods",
 ]
