@@ -1,0 +1,361 @@
+"""What would restore the target at today's activity, searched only inside the safe limits.
+
+Three levers, one at a time, the others held at their present values:
+
+``temperature``     reactor temperature, inside ``UnitModel.temperature_limits`` [K]
+``feed_flow``       feed flow, inside ``UnitModel.feed_flow_limits`` [m^3/s]
+``residence_time``  hold-up V at the present feed flow (tau = V / Q), inside
+                    ``volume_limits`` [m^3] given by the caller (e.g. from the
+                    configured level limits and the level-volume table)
+
+Production at a setting comes from the steady-state CSTR solution of the main
+reaction's rate law with k = a k_fresh(T) (:mod:`kinetrace.kinetics.cstr`).
+The search evaluates production on a grid spanning the safe range only, takes
+the lowest setting whose production reaches the target and refines it by
+Brent's method between grid points; it never evaluates, let alone returns, a
+setting outside the range. When no setting in the range reaches the target,
+the result says so and gives the best production the range allows. Every
+result carries :data:`~kinetrace.monitor._common.CAUTIONS`.
+
+Caution
+-------
+Estimates only. A higher temperature or throughput changes heat release,
+pressure and by-products; any change must be checked against the unit's safe
+operating envelope, relief and runaway studies and site management of change,
+and defers to site procedures, local codes and licensed engineering practice.
+
+References
+----------
+.. [1] Fogler, H. S. (2016). Elements of Chemical Reaction Engineering, 5th ed., ch. 5.
+.. [2] Brent, R. P. (1973). Algorithms for Minimization without Derivatives.
+   Prentice Hall, ch. 4.
+"""
+
+from __future__ import annotations
+
+from dataclasses import dataclass
+
+import numpy as np
+from scipy import optimize
+
+from kinetrace.config.model import UnitModel
+from kinetrace.errors import KinetraceError
+from kinetrace.monitor._common import CAUTIONS
+from kinetrace.monitor._unit import MainReaction, main_reaction
+
+__all__ = [
+    "WhatIf",
+    "CAUTIONS",
+    "list_levers",
+    "production_at",
+    "what_if",
+    "volume_limits_from_level",
+]
+
+_LEVERS = {
+    "temperature": ("K", "reactor temperature"),
+    "feed_flow": ("m3/s", "feed flow"),
+    "residence_time": ("s", "residence time"),
+}
+
+
+def list_levers() -> list[str]:
+    """Levers :func:`what_if` can search.
+
+    Examples
+    --------
+    >>> list_levers()
+    ['temperature', 'feed_flow', 'residence_time']
+    """
+    return list(_LEVERS)
+
+
+@dataclass(frozen=True)
+class WhatIf:
+    """The setting of one lever that would restore the target (see :func:`what_if`).
+
+    Attributes
+    ----------
+    lever : str
+        ``temperature``, ``feed_flow`` or ``residence_time``.
+    feasible : bool
+        True when a setting inside the safe limits reaches the target.
+    setting : float or None
+        That setting [K, m^3/s or s]; None when not feasible. Always inside ``limits``.
+    unit : str
+        Unit of ``setting``, ``current`` and ``limits``.
+    current : float
+        Present value of the lever.
+    limits : tuple of float
+        Safe range searched.
+    production : float
+        Predicted product rate at ``setting``, or the best inside the limits
+        when not feasible. [mol/s]
+    target : float
+        Product rate wanted. [mol/s]
+    message : str
+        The result in plain words.
+    volume : float or None
+        Hold-up for the ``residence_time`` lever. [m^3]
+    cautions : str
+        Standard cautions; always shown with the result.
+    """
+
+    lever: str
+    feasible: bool
+    setting: float | None
+    unit: str
+    current: float
+    limits: tuple[float, float]
+    production: float
+    target: float
+    message: str
+    volume: float | None = None
+    cautions: str = CAUTIONS
+
+
+def production_at(
+    model: UnitModel,
+    *,
+    activity,
+    feed_flow,
+    temperature,
+    volume,
+    feed_conc: dict | None = None,
+    fresh_k_ref: float | None = None,
+    yield_factor: float = 1.0,
+):
+    """Steady-state product rate of the unit's CSTR model.
+
+    Parameters
+    ----------
+    model : UnitModel
+        The unit.
+    activity : float or array_like
+        Catalyst activity. [-]
+    feed_flow : float or array_like
+        Feed flow. [m^3/s]
+    temperature : float or array_like
+        Reactor temperature. [K]
+    volume : float or array_like
+        Liquid volume. [m^3]
+    feed_conc, fresh_k_ref, yield_factor
+        As in :func:`kinetrace.monitor.forecast.required_activity`.
+
+    Returns
+    -------
+    float or ndarray
+        Product rate. [mol/s]
+
+    References
+    ----------
+    .. [1] Fogler, H. S. (2016). Elements of Chemical Reaction Engineering, 5th ed., ch. 5.
+
+    Examples
+    --------
+    A first-order unit: k tau = 4 at full activity gives X = 0.8; the activity
+    needed for X = 0.5 is 1/4 (k tau = 1).
+
+    >>> import numpy as np
+    >>> from kinetrace.config.model import RateLawModel, UnitModel
+    >>> law = RateLawModel("power_law", 0.01, 60e3, 350.0, {"orders": {"A": 1.0}})
+    >>> m = UnitModel("R-1", ("A", "P"), np.array([0.1, 0.1]), ("r1",), np.array([[-1.0], [1.0]]),
+    ...     {"r1": law}, "A", "P", 0.5, 0.4, None, {"A": 1000.0}, (), (330.0, 370.0), (1e-4, 2e-3))
+    >>> round(float(production_at(m, activity=1.0, feed_flow=1e-3, temperature=350.0, volume=0.4)), 6)
+    0.8
+    >>> from kinetrace.monitor.forecast import required_activity
+    >>> round(required_activity(m, feed_flow=1e-3, temperature=350.0, volume=0.4), 6)
+    0.25
+    """
+    rx = main_reaction(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
+    p = rx.production(activity, feed_flow, temperature, volume)
+    return float(p) if np.ndim(p) == 0 else p
+
+
+def volume_limits_from_level(model: UnitModel, level_limits) -> tuple[float, float]:
+    """Hold-up range from level limits and the unit's level-volume table.
+
+    Parameters
+    ----------
+    model : UnitModel
+        The unit (``level_table``: level fraction, volume [m^3]).
+    level_limits : tuple of float
+        Lowest and highest safe level. [% of span, as in the configuration]
+
+    Returns
+    -------
+    tuple of float
+        (V_min, V_max). [m^3]
+    """
+    if model.level_table is None:
+        raise KinetraceError(f"unit {model.id}: no level-volume table; give volume limits in m^3 instead")
+    lo, hi = (float(v) / 100.0 for v in level_limits)
+    if not 0.0 <= lo < hi <= 1.0:
+        raise KinetraceError(f"level limits must satisfy 0 <= low < high <= 100 %, got {level_limits!r}")
+    table = model.level_table
+    return float(np.interp(lo, table[:, 0], table[:, 1])), float(np.interp(hi, table[:, 0], table[:, 1]))
+
+
+def _check_limits(limits, name: str) -> tuple[float, float]:
+    try:
+        lo, hi = (float(v) for v in limits)
+    except (TypeError, ValueError):
+        raise KinetraceError(f"{name} must be a pair (low, high), got {limits!r}") from None
+    if not (np.isfinite(lo) and np.isfinite(hi) and 0.0 < lo <= hi):
+        raise KinetraceError(f"{name} must satisfy 0 < low <= high, got {limits!r}")
+    return lo, hi
+
+
+def _search(prod, lo: float, hi: float, target: float, n_grid: int = 129):
+    """Lowest x in [lo, hi] with prod(x) >= target, or (None, best production)."""
+    grid = np.linspace(lo, hi, n_grid) if hi > lo else np.array([lo])
+    p = np.asarray(prod(grid), dtype=float)
+    ok = np.isfinite(p) & (p >= target)
+    if not ok.any():
+        return None, float(np.nanmax(p)) if np.isfinite(p).any() else float("nan")
+    i = int(np.argmax(ok))
+    if i == 0:
+        return float(grid[0]), float(p[0])
+    a, b = float(grid[i - 1]), float(grid[i])
+    f = lambda x: float(np.asarray(prod(np.array([x])))[0]) - target  # noqa: E731
+    try:
+        x = optimize.brentq(f, a, b, xtol=1e-12 * max(abs(b), 1.0), rtol=1e-12)
+    except ValueError:
+        x = b
+    if f(x) < 0:  # step to the side of the root that meets the target
+        x = b
+    x = min(max(x, lo), hi)
+    return x, float(prod(np.array([x]))[0])
+
+
+def _message(lever: str, feasible: bool, setting, current, limits, unit, production, target, already, extra=""):
+    name = _LEVERS[lever][1]
+    rng = f"{limits[0]:.4g}-{limits[1]:.4g} {unit}"
+    if already:
+        return (f"The unit meets its target at the present {name} ({current:.4g} {unit}); no change is needed. "
+                + extra).strip()
+    if feasible:
+        return (f"At today's activity, a {name} of about {setting:.4g} {unit} (now {current:.4g} {unit}) would "
+                f"restore the target, predicted {production:.4g} mol/s against {target:.4g} mol/s; this is inside "
+                f"the configured safe range {rng}. " + extra).strip()
+    return (f"No {name} inside the configured safe range {rng} restores the target at today's activity: the most "
+            f"the model predicts there is {production:.4g} mol/s against {target:.4g} mol/s. " + extra).strip()
+
+
+def _lever_result(rx: MainReaction, lever, *, activity, feed_flow, temperature, volume, target, limits):
+    if lever == "temperature":
+        current = temperature
+        prod = lambda x: rx.production(activity, feed_flow, x, volume)  # noqa: E731
+        unit = "K"
+    elif lever == "feed_flow":
+        current = feed_flow
+        prod = lambda x: rx.production(activity, x, temperature, volume)  # noqa: E731
+        unit = "m3/s"
+    else:
+        current = volume / feed_flow
+        prod = lambda x: rx.production(activity, feed_flow, temperature, x * feed_flow)  # noqa: E731
+        unit = "s"
+    lo, hi = limits
+    now = float(np.asarray(prod(np.array([current])))[0])
+    inside = lo <= current <= hi
+    extra = {"feed_flow": "A higher feed lowers conversion and sends more unconverted reactant downstream.",
+             "temperature": "A higher temperature raises heat release and may favour side reactions.",
+             "residence_time": ""}[lever]
+    if inside and np.isfinite(now) and now >= target:
+        setting, p, already = float(current), now, True
+    else:
+        setting, p = _search(prod, lo, hi, target)
+        already = False
+    feasible = setting is not None
+    if feasible and not lo <= setting <= hi:  # the search cannot leave the range; refuse if it ever did
+        raise KinetraceError(f"internal error: {lever} setting {setting} outside the safe range {limits}")
+    msg = _message(lever, feasible, setting, float(current), (lo, hi), unit, p, target, already, extra)
+    vol = None if lever != "residence_time" or setting is None else float(setting * feed_flow)
+    return WhatIf(lever, feasible, setting, unit, float(current), (lo, hi), p, float(target), msg, vol)
+
+
+def what_if(
+    model: UnitModel,
+    *,
+    activity: float,
+    feed_flow: float,
+    temperature: float,
+    volume: float,
+    volume_limits: tuple[float, float] | None = None,
+    levers=("temperature", "feed_flow", "residence_time"),
+    target_rate: float | None = None,
+    feed_conc: dict | None = None,
+    fresh_k_ref: float | None = None,
+    yield_factor: float = 1.0,
+) -> list[WhatIf]:
+    """Settings of temperature, feed flow or residence time that restore the target, inside the safe limits.
+
+    Parameters
+    ----------
+    model : UnitModel
+        The unit; ``temperature_limits`` [K] and ``feed_flow_limits`` [m^3/s] bound the search.
+    activity : float
+        Today's catalyst activity. [-]
+    feed_flow : float
+        Present feed flow. [m^3/s]
+    temperature : float
+        Present reactor temperature. [K]
+    volume : float
+        Present liquid volume. [m^3]
+    volume_limits : tuple of float, optional
+        Safe hold-up range for the residence-time lever [m^3] (see
+        :func:`volume_limits_from_level`); without it that lever is not searched
+        and the result says so.
+    levers : sequence of str
+        Levers to search (see :func:`list_levers`).
+    target_rate : float, optional
+        Product rate wanted [mol/s]; default ``model.target_rate``.
+    feed_conc, fresh_k_ref, yield_factor
+        As in :func:`kinetrace.monitor.forecast.required_activity`.
+
+    Returns
+    -------
+    list of WhatIf
+        One per lever, each with the standard cautions.
+
+    References
+    ----------
+    .. [1] Fogler, H. S. (2016). Elements of Chemical Reaction Engineering, 5th ed., ch. 5.
+
+    Examples
+    --------
+    >>> import numpy as np
+    >>> from kinetrace.config.model import RateLawModel, UnitModel
+    >>> law = RateLawModel("power_law", 0.01, 60e3, 350.0, {"orders": {"A": 1.0}})
+    >>> m = UnitModel("R-1", ("A", "P"), np.array([0.1, 0.1]), ("r1",), np.array([[-1.0], [1.0]]),
+    ...     {"r1": law}, "A", "P", 0.8, 0.4, None, {"A": 1000.0}, (), (330.0, 370.0), (1e-4, 2e-3))
+    >>> res = what_if(m, activity=0.5, feed_flow=1e-3, temperature=350.0, volume=0.4, levers=["temperature"])
+    >>> res[0].feasible, 350.0 < res[0].setting <= 370.0, "management of change" in res[0].cautions
+    (True, True, True)
+    """
+    rx = main_reaction(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
+    target = model.target_rate if target_rate is None else float(target_rate)
+    for name, v in (("activity", activity), ("feed_flow", feed_flow), ("temperature", temperature),
+                    ("volume", volume)):
+        if not (np.isfinite(v) and v > 0):
+            raise KinetraceError(f"what-if for unit {model.id}: {name} must be a positive number, got {v!r}")
+    out = []
+    for lever in levers:
+        if lever not in _LEVERS:
+            raise KinetraceError(f"unknown lever {lever!r}; allowed: {', '.join(_LEVERS)}")
+        kw = dict(activity=activity, feed_flow=feed_flow, temperature=temperature, volume=volume, target=target)
+        if lever == "temperature":
+            limits = _check_limits(model.temperature_limits, f"unit {model.id} temperature_limits")
+        elif lever == "feed_flow":
+            limits = _check_limits(model.feed_flow_limits, f"unit {model.id} feed_flow_limits")
+        else:
+            if volume_limits is None:
+                out.append(WhatIf(lever, False, None, "s", volume / feed_flow, (np.nan, np.nan), float("nan"),
+                                  target, "Residence time was not searched: no safe hold-up (level) limits were "
+                                  "given. Change of residence time through the feed flow is covered by the "
+                                  "feed-flow result."))
+                continue
+            v_lo, v_hi = _check_limits(volume_limits, f"unit {model.id} volume_limits")
+            limits = (v_lo / feed_flow, v_hi / feed_flow)
+        out.append(_lever_result(rx, lever, limits=limits, **kw))
+    return out
