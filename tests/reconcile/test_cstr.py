@@ -184,3 +184,17 @@ def test_level_change_and_accumulation_terms(rng):
     np.testing.assert_allclose(r.dvdt, dvdt, rtol=1e-10)
     np.testing.assert_allclose(np.diagonal(r.cov_x, axis1=1, axis2=2), r.var_x, atol=1e-20)
     assert r.redundant[0, -1]  # the level signal is checked by the volume balance
+
+
+def test_extents_unobservable_at_one_step_only(rng):
+    # Outlet analysers of A, B and C all missing at step 2: the extents cannot be found
+    # there (flagged, NaN), elsewhere they can; no exception since the sensors exist.
+    y, _ = _synthetic(rng, 5)
+    y["c_out"][2, :3] = np.nan
+    r = _run(y)
+    assert not r.observable_z[2].any() and np.isnan(r.extent[2]).all()
+    assert r.observable_z[[0, 1, 3, 4]].all() and np.isfinite(r.extent[[0, 1, 3, 4]]).all()
+    assert r.missing_counts == {"c_out[S0]": 1, "c_out[S1]": 1, "c_out[S2]": 1}
+    with pytest.raises(ReconciliationError, match="no time steps"):
+        reconcile_cstr(np.zeros(0), np.zeros(0), np.zeros((0, 4)), np.zeros((0, 4)), NU,
+                       sigma_q_in=SIG_Q, sigma_q_out=SIG_Q, sigma_c_in=SIG_CIN, sigma_c_out=SIG_COUT)

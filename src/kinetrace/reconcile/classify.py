@@ -52,11 +52,13 @@ class Classification:
         want = set(self.unknown_names if which is None else which)
         missing = [nm for nm in self.unobservable_names if nm in want]
         if missing:
+            others = [nm for nm in self.unknown_names if nm not in want]
+            hint = (f"Measure more of the unmeasured variables ({', '.join(others)}) or reduce "
+                    f"the unknowns (e.g. fewer independent reactions)" if others else
+                    "Reduce the unknowns (e.g. fewer independent reactions)")
             raise UnobservableError(
                 f"the measured variables cannot determine the {what} {', '.join(missing)}: "
-                f"the balances leave {len(missing)} of them free. Measure more of the "
-                f"unmeasured variables ({', '.join(self.unobservable_names)}) or reduce the "
-                f"unknowns (e.g. fewer independent reactions)",
+                f"the balances leave {len(missing)} of them free. {hint}",
                 missing,
             )
         return self

@@ -209,6 +209,8 @@ class CSTRBalances:
         y, sigma, status = check_inputs(y, sigma, self.names)
         if y.shape[1] != len(self.names):
             raise ReconciliationError(f"packed y has {y.shape[1]} columns; expected {len(self.names)}")
+        if y.shape[0] == 0:
+            raise ReconciliationError("no time steps given (measurements have 0 rows)")
         if accumulation is not None:
             accumulation = np.broadcast_to(np.asarray(accumulation, float), (y.shape[0], self.n_species))
         if check_observability:
