@@ -55,6 +55,23 @@ Uncertainty
     -> SigmaEstimate``; ``sigma_methods()`` lists the methods. A ``SigmaEstimate`` may be
     passed wherever a sigma is expected; results record ``sigma_source``.
 
+Quick start
+-----------
+Invented example: reactor R-7 makes B from A (A -> B), feed of pure A at steady level.
+
+>>> import numpy as np
+>>> from kinetrace.reconcile import reconcile_cstr, global_test, closure_table
+>>> r = reconcile_cstr(q_in=[1.00e-3, 1.01e-3], q_out=[1.02e-3, 1.00e-3],
+...                    c_in=[[1000.0, 0.0], [990.0, 0.0]], c_out=[[400.0, 610.0], [420.0, 575.0]],
+...                    nu=[[-1.0], [1.0]], sigma_q_in=1e-5, sigma_q_out=1e-5,
+...                    sigma_c_in=[10.0, 0.0], sigma_c_out=10.0, species=["A", "B"], reactions=["r1"])
+>>> r.extent.round(3).tolist()                # extent rates [mol/s]
+[[0.613], [0.576]]
+>>> global_test(r).reject.tolist()            # no gross error indicated at alpha = 0.05
+[False, False]
+>>> closure_table(r).balance.unique().tolist()
+['balance[A]', 'balance[B]', 'volume']
+
 Errors
     :class:`ReconciliationError` (bad inputs), :class:`UnobservableError` (sensors cannot
     determine the required unknowns), :class:`ConvergenceError`; all derive from
