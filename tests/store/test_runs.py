@@ -183,3 +183,38 @@ def test_incremental_runs_continue_from_the_watermark(store_url):
         assert run.set_watermark("R-210", cuts[1] - pd.Timedelta("15min")) == full.index[-1]
     assert store.watermark("R-210") == full.index[-1]
     np.testing.assert_array_equal(store.runs()["status"].to_numpy(), ["complete"] * 4)
+
+
+def test_concurrent_runs_of_one_window_never_mix(store_url):
+    """Two runs of the same window at once: the store ends with exactly one run's results."""
+    import threading
+
+    store = open_store(store_url)
+    errors = []
+
+    def one(seed):
+        try:
+            with store.write_run((W0, W1), config_fingerprint=FP) as run:
+                fill_window(run, W0, W1, freq="10min", seed=seed)
+        except Exception as exc:  # noqa: BLE001 - collected and asserted below
+            errors.append(exc)
+
+    threads = [threading.Thread(target=one, args=(s,)) for s in (1, 2)]
+    for t in threads:
+        t.start()
+    for t in threads:
+        t.join(timeout=120)
+    assert not errors
+    got = store.series("R-210")
+    candidates = [series_frame(W0, W1, freq="10min", seed=10 * s).astype(float) for s in (1, 2)]
+    matches = [c[sorted(c.columns)].equals(got.set_axis(c.index)) for c in candidates]
+    assert sum(matches) == 1
+    last = store.runs().sort_values("finished")["run_id"].iloc[-1]
+    assert (store.dump(["series_values"])["series_values"]["run_id"] == last).all()
+
+
+def test_relative_sqlite_path_is_taken_from_base_dir(tmp_path):
+    store = open_store("sqlite:///out/nested/results.sqlite", base_dir=tmp_path)
+    with store.write_run((W0, W1), config_fingerprint=FP) as run:
+        run.set_watermark("R-210", W0)
+    assert (tmp_path / "out" / "nested" / "results.sqlite").exists()

@@ -152,17 +152,18 @@ def read_series_rows(conn: Connection, key_ids: list[int], start_us: int | None,
     if end_us is not None:
         stmt = stmt.where(_ts_bound(conn, raw_ts, end_us, "<"))
     stmt = stmt.order_by(series_values.c.key_id, series_values.c.ts)
-    rows = conn.execute(stmt).all()
-    if rows:
-        key, ts, val, run = (np.asarray(c) for c in zip(*rows))
-    else:
-        key, ts, val, run = (np.array([], dtype=t) for t in ("int64", "int64", "float64", "int64"))
+    result = conn.execute(stmt)
+    try:
+        # plain DBAPI tuples: the selected columns need no result processing (integers and floats)
+        raw = result.cursor.fetchall()
+    finally:
+        result.close()
+    frame = pd.DataFrame.from_records(raw, columns=["key_id", "ts_us", "value", "run_id"], nrows=len(raw))
     return pd.DataFrame({
-        "key_id": key.astype("int64"),
-        "ts": pd.to_datetime(ts.astype("int64"), unit="us", utc=True),
-        "value": np.array([np.nan if v is None else v for v in val], dtype=float) if val.dtype == object
-        else val.astype(float),
-        "run_id": run.astype("int64"),
+        "key_id": frame["key_id"].to_numpy(dtype="int64"),
+        "ts": pd.to_datetime(frame["ts_us"].to_numpy(dtype="int64"), unit="us", utc=True),
+        "value": pd.to_numeric(frame["value"], errors="raise").to_numpy(dtype=float, na_value=np.nan),
+        "run_id": frame["run_id"].to_numpy(dtype="int64"),
     })
 
 

@@ -9,8 +9,9 @@ from pathlib import Path
 from typing import Iterator
 
 import pandas as pd
-from sqlalchemy import Engine, create_engine, event, insert, select, update
+from sqlalchemy import Engine, create_engine, event, insert, select, text, update
 from sqlalchemy.exc import ArgumentError, OperationalError
+from sqlalchemy.engine import make_url
 from sqlalchemy.exc import NoSuchModuleError
 
 from . import reader
@@ -47,7 +48,13 @@ def fingerprint(source) -> str:
     return "sha256:" + hashlib.sha256(data).hexdigest()
 
 
-def _sqlite_pragmas(dbapi_conn, _record) -> None:
+#: Key of the PostgreSQL advisory lock that serialises runs on one database.
+RUN_LOCK_KEY = 0x6B74_0001
+
+
+def _sqlite_connect(dbapi_conn, _record) -> None:
+    """SQLAlchemy, not the sqlite3 module, emits BEGIN (SQLAlchemy SQLite docs, "Transactions")."""
+    dbapi_conn.isolation_level = None
     cur = dbapi_conn.cursor()
     cur.execute("PRAGMA foreign_keys = ON")
     cur.execute("PRAGMA busy_timeout = 30000")
@@ -55,7 +62,13 @@ def _sqlite_pragmas(dbapi_conn, _record) -> None:
     cur.close()
 
 
-def open_store(url: str, *, create: bool = True, echo: bool = False) -> "Store":
+def _sqlite_begin(conn) -> None:
+    """BEGIN IMMEDIATE for a run (takes the write lock first, so runs queue instead of failing)."""
+    immediate = conn.get_execution_options().get("kinetrace_run", False)
+    conn.exec_driver_sql("BEGIN IMMEDIATE" if immediate else "BEGIN")
+
+
+def open_store(url: str, *, create: bool = True, echo: bool = False, base_dir=None) -> "Store":
     """Open (and by default create) a results store.
 
     Parameters
@@ -68,6 +81,10 @@ def open_store(url: str, *, create: bool = True, echo: bool = False) -> "Store":
         Create missing tables (existing tables are left as they are).
     echo : bool
         Log SQL statements (debugging).
+    base_dir : path, optional
+        Folder that a relative SQLite path is taken from (e.g. the configuration's
+        folder); default the working directory. The SQLite file's folder is created
+        if missing.
 
     Returns
     -------
@@ -82,14 +99,23 @@ def open_store(url: str, *, create: bool = True, echo: bool = False) -> "Store":
     if url.startswith("postgresql://"):
         url = "postgresql+psycopg://" + url[len("postgresql://"):]
     try:
-        engine = create_engine(url, echo=echo)
+        parsed = make_url(url)
+        if parsed.get_backend_name() == "sqlite" and parsed.database not in (None, "", ":memory:") \
+                and not parsed.database.startswith("file:"):
+            path = Path(parsed.database)
+            if not path.is_absolute() and base_dir is not None:
+                path = Path(base_dir) / path
+            path.parent.mkdir(parents=True, exist_ok=True)
+            parsed = parsed.set(database=str(path))
+        engine = create_engine(parsed, echo=echo)
     except (ArgumentError, NoSuchModuleError) as exc:
         raise StoreError(f"store url {url!r} cannot be used: {exc}") from None
     if engine.dialect.name not in SUPPORTED_DIALECTS:
         raise StoreError(f"store url {url!r}: back end {engine.dialect.name!r} is not supported; "
                          f"use one of {list(SUPPORTED_DIALECTS)}")
     if engine.dialect.name == "sqlite":
-        event.listen(engine, "connect", _sqlite_pragmas)
+        event.listen(engine, "connect", _sqlite_connect)
+        event.listen(engine, "begin", _sqlite_begin)
     store = Store(engine)
     try:
         if create:
@@ -149,7 +175,10 @@ class Store:
         final status ``complete`` are committed together when the block ends. An
         exception rolls every result back (the previous results stay as they were) and
         marks the run ``failed`` with the error; a process killed in the block leaves
-        the run ``running`` with no finish time, and the results untouched.
+        the run ``running`` with no finish time, and the results untouched. Runs on
+        one store are serialised (SQLite ``BEGIN IMMEDIATE``; a PostgreSQL
+        transaction-level advisory lock), so two runs of the same window never mix:
+        the one that commits last wins.
 
         Parameters
         ----------
@@ -189,17 +218,21 @@ class Store:
                 window_start=start, window_end=end,
                 software_version=software_version or __version__).returning(runs.c.run_id)).scalar_one()
         try:
-            with self.engine.begin() as conn:
-                writer = RunWriter(conn, run_id, start, end)
-                yield writer
-                conn.execute(update(runs).where(runs.c.run_id == run_id).values(
-                    status="complete", finished=pd.Timestamp.now(tz="UTC"),
-                    message=_summary(writer.rows_written)))
+            with self.engine.connect() as conn:
+                conn.execution_options(kinetrace_run=True)
+                with conn.begin():
+                    if self.dialect == "postgresql":
+                        conn.execute(text("SELECT pg_advisory_xact_lock(:k)"), {"k": RUN_LOCK_KEY})
+                    writer = RunWriter(conn, run_id, start, end)
+                    yield writer
+                    conn.execute(update(runs).where(runs.c.run_id == run_id).values(
+                        status="complete", finished=pd.Timestamp.now(tz="UTC"),
+                        message=_summary(writer.rows_written)))
         except BaseException as exc:
-            text = "".join(traceback.format_exception_only(type(exc), exc)).strip()
+            err_text = "".join(traceback.format_exception_only(type(exc), exc)).strip()
             with self.engine.begin() as conn:
                 conn.execute(update(runs).where(runs.c.run_id == run_id).values(
-                    status="failed", finished=pd.Timestamp.now(tz="UTC"), message=text[:4000]))
+                    status="failed", finished=pd.Timestamp.now(tz="UTC"), message=err_text[:4000]))
             raise
 
     # -- reading --------------------------------------------------------------------------

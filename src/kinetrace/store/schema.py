@@ -161,12 +161,15 @@ series_keys = Table(
     UniqueConstraint("unit_id", "variable", name="series_keys_unit_variable"),
 )
 
+# No foreign keys here on purpose: on PostgreSQL a foreign key is a trigger per row, which
+# made a 2.6-million-row write about 17 times slower than the bare COPY; key_id and run_id
+# are set by the writer in the same transaction that creates the key and holds the run.
 series_values = Table(
     "series_values", metadata,
-    Column("key_id", Integer, ForeignKey("series_keys.key_id"), primary_key=True),
+    Column("key_id", Integer, primary_key=True, autoincrement=False),
     Column("ts", UtcTime, primary_key=True),
     Column("value", Double),
-    Column("run_id", Integer, ForeignKey("runs.run_id"), nullable=False),
+    Column("run_id", Integer, nullable=False),
     sqlite_with_rowid=False,
 )
 
