@@ -315,7 +315,7 @@ def attribute_shortfall(
     out["target"] = target_rate * hours * 3600.0
     absent = out["target"] - out["row_target"]  # time of the period with no row at all
     out["data"] = out["data"] + absent
-    out["hours_missing"] = absent / target_rate / 3600.0
+    out["hours_missing"] = hours - out[["hours_running", "hours_down", "hours_poor"]].sum(axis=1)
     out["gap"] = out["target"] - out["produced"]
     out.index.name = "start"
     out = out[["target", "produced", "gap", *CAUSES, "hours_running", "hours_down", "hours_poor", "hours_missing"]]

@@ -207,7 +207,7 @@ def _check_limits(limits, name: str) -> tuple[float, float]:
 
 
 def _search(prod, lo: float, hi: float, target: float, n_grid: int = 129):
-    """Lowest x in [lo, hi] with prod(x) >= target, or (None, best production)."""
+    """Lowest x in [lo, hi] with prod(x) >= target (to a relative 1e-10), or (None, best production)."""
     grid = np.linspace(lo, hi, n_grid) if hi > lo else np.array([lo])
     p = np.asarray(prod(grid), dtype=float)
     ok = np.isfinite(p) & (p >= target)
@@ -222,7 +222,7 @@ def _search(prod, lo: float, hi: float, target: float, n_grid: int = 129):
         x = optimize.brentq(f, a, b, xtol=1e-12 * max(abs(b), 1.0), rtol=1e-12)
     except ValueError:
         x = b
-    if f(x) < 0:  # step to the side of the root that meets the target
+    if f(x) < -1e-10 * max(abs(target), 1e-300):  # not met even to rounding: take the grid point that is
         x = b
     x = min(max(x, lo), hi)
     return x, float(prod(np.array([x]))[0])
