@@ -85,6 +85,11 @@ def store_value(store, src: str) -> float:
         w = store.whatif(unit, latest=False)
         row = w.loc[(w["as_of"] == _ts(parts[2])) & (w["lever"] == parts[3])]
         return float(row[parts[4]].iloc[0])
+    if table == "data_quality":
+        q = store.quality(unit)
+        row = q.loc[(q["tag"] == parts[2]) & (q["period_start"] == _ts(parts[3])) & (q["measure"] == parts[4])]
+        assert len(row) == 1, src
+        return float(row[parts[5]].iloc[0])
     raise AssertionError(f"unknown source table in {src}")
 
 
@@ -198,6 +203,17 @@ def test_xlsx_numbers_equal_the_store(report, filled_store):
     open_now = stored.loc[stored["state"] == "open"]
     assert set(open_now["unit_id"] + open_now["detected"].astype(str)) <= \
         set(al["unit_id"] + al["detected_utc"].map(lambda t: str(pd.Timestamp(t, tz="UTC"))))
+
+
+def test_quality_counts_in_html_and_xlsx(report, filled_store):
+    files, parser = report
+    srcs = [n[0] for n in parser.numbers if n[0].startswith("data_quality|")]
+    assert srcs and all(s.endswith("|count") for s in srcs)     # values checked in the test above
+    q = filled_store.quality(start="2026-11-30T00:00Z", end="2026-12-01T00:00Z")
+    sheet = _sheet(openpyxl.load_workbook(files.xlsx), "Data quality")
+    assert len(sheet) == len(q) == 18                           # 2 units x 3 tags x 3 counts (synthetic)
+    assert sheet["count"].tolist() == q["count"].tolist()
+    assert sheet["measure"].tolist() == q["measure"].tolist()
 
 
 def test_attention_reasons_name_units_below_target_or_with_open_alarms(report):

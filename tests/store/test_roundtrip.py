@@ -102,6 +102,8 @@ def test_small_tables_round_trip(store_url):
 
 @pytest.mark.parametrize("mutate, message", [
     (lambda d: d.assign(gap_data_kg=d["gap_data_kg"] + 1.0), "must add up to the gap"),
+    (lambda d: d.assign(gap_kg=d["gap_kg"] + 1.0), "is not target - production"),
+    (lambda d: d.assign(gap_feed_kg=np.nan), "part(s) ['gap_feed_kg'] are missing"),
     (lambda d: d.drop(columns="gap_kg"), "missing column(s) ['gap_kg']"),
     (lambda d: d.assign(bonus=1.0), "unknown column(s) ['bonus']"),
     (lambda d: d.set_axis([pd.Timestamp("2026-12-05").date()] * 1 + list(d.index[1:])), "does not overlap"),

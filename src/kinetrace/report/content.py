@@ -82,6 +82,8 @@ class UnitReport:
     whatif: pd.DataFrame = field(default_factory=pd.DataFrame)
     trend: pd.Series | None = None                                # hourly mean activity [-]
     watermark: pd.Timestamp | None = None
+    quality: pd.DataFrame = field(default_factory=pd.DataFrame)   # per-tag counts of the day's periods
+    complete: bool = False                                         # data processed to the day's end
 
 
 @dataclass
@@ -145,11 +147,20 @@ def _unit_report(store: Store, unit: str, day: dt.date, span, daily: pd.DataFram
     fc = store.forecasts(unit, as_of=end)
     ur.forecast = fc.iloc[0].to_dict() if len(fc) else None
     ur.whatif = store.whatif(unit, as_of=end)
+    w = ur.whatif
+    outside = w.loc[w["proposed_value"].notna() & ((w["proposed_value"] < w["safe_low"])
+                                                   | (w["proposed_value"] > w["safe_high"]))]
+    if len(outside):
+        r = outside.iloc[0]
+        raise ReportError(f"unit {unit}: stored what-if for {r['lever']} proposes {r['proposed_value']}, outside "
+                          f"its safe limits [{r['safe_low']}, {r['safe_high']}]; refusing to show it")
     cat = store.series_catalog(unit)
     if "activity" in set(cat["variable"]):
         s = store.series(unit, ["activity"], end - pd.Timedelta(days=TREND_DAYS), end)["activity"]
         ur.trend = s.resample("1h").mean().dropna() if len(s) else None
     ur.watermark = store.watermark(unit)
+    ur.complete = ur.watermark is not None and ur.watermark >= end - pd.Timedelta(hours=1)
+    ur.quality = store.quality(unit, start, end)
     return ur
 
 

@@ -14,7 +14,7 @@ import pandas as pd
 
 from .content import Figure, ReportContent, UnitReport, iso
 from .svg import COLOURS, production_bars, trend_line
-from .wording import CAUTIONS, alarm_sentence, gap_sentence, number, sig, when, whatif_sentence
+from .wording import CAUTIONS, alarm_sentence, gap_sentence, number, quality_word, sig, when, whatif_sentence
 
 STATUS_CLASS = {"on target": "met", "short of target": "short", "no data": "nodata"}
 
@@ -104,6 +104,25 @@ def _alarm_block(u: UnitReport, content: ReportContent) -> str:
     return "".join(items)
 
 
+def _quality_block(u: UnitReport) -> str:
+    if u.quality.empty:
+        return ""
+    lines = []
+    for (tag, p0), rows in u.quality.groupby(["tag", "period_start"], sort=True):
+        total = int(rows["count"].sum())
+        bad = rows.loc[(rows["measure"] != "good") & (rows["count"] > 0)]
+        if bad.empty:
+            continue
+        key = f"data_quality|{u.unit}|{tag}|{iso(p0)}"
+        parts = ", ".join(f"{escape(quality_word(r['measure']))} "
+                          f"{fig(Figure(float(r['count']), key + '|' + r['measure'] + '|count'))}"
+                          for _, r in bad.iterrows())
+        lines.append(f"<li>{escape(tag)}: {number(float(bad['count'].sum()))} of {number(float(total))} "
+                     f"readings not used ({parts}).</li>")
+    body = f"<ul>{''.join(lines)}</ul>" if lines else "<p>Every reading of the day passed screening.</p>"
+    return f"<h3>Data quality</h3>{body}"
+
+
 def _parameter_block(u: UnitReport) -> str:
     if u.parameters.empty:
         return ""
@@ -157,11 +176,12 @@ def _charts(u: UnitReport) -> str:
 
 def _unit_section(u: UnitReport, content: ReportContent) -> str:
     mark = when(u.watermark) if u.watermark is not None else "never"
+    note = "" if u.complete else " — the day is not fully processed yet; its figures may change"
     return (f"<section class='unit' id='unit-{escape(u.unit)}'><h2>{escape(u.unit)}"
             f"<span class='badge {STATUS_CLASS[u.status]}'>{escape(u.status)}</span></h2>"
-            f"<div class='sub'>Data processed up to {escape(mark)}</div>"
-            f"{_charts(u)}{_production_block(u, content)}{_alarm_block(u, content)}{_outlook_block(u)}"
-            f"{_parameter_block(u)}</section>")
+            f"<div class='sub'>Data processed up to {escape(mark)}{escape(note)}</div>"
+            f"{_charts(u)}{_production_block(u, content)}{_alarm_block(u, content)}{_quality_block(u)}"
+            f"{_outlook_block(u)}{_parameter_block(u)}</section>")
 
 
 def render_html(content: ReportContent) -> str:

@@ -95,3 +95,20 @@ def gap_sentence(gap: float, parts: dict[str, float]) -> str:
     shown = [f"{names[k]} {number(v)} kg" for k, v in parts.items() if math.isfinite(v) and round(v) != 0]
     head = f"Short by {number(gap)} kg" if gap > 0 else f"Ahead by {number(-gap)} kg"
     return head + (": " + ", ".join(shown) + "." if shown else ".")
+
+
+QUALITY_WORDS = {
+    "bad_timestamp": "unreadable time stamp", "ambiguous_time": "ambiguous local time",
+    "nonexistent_time": "non-existent local time", "bad_quality_code": "bad quality code",
+    "bad_value": "empty or non-numeric value", "duplicate": "duplicate", "conflicting_duplicate":
+    "conflicting duplicate", "out_of_range": "out of range", "spike": "spike", "frozen": "frozen (flat-lined)",
+}
+
+
+def quality_word(measure: str) -> str:
+    """Plain name of a data-quality count.
+
+    >>> quality_word("out_of_range"), quality_word("late_arrival")
+    ('out of range', 'late arrival')
+    """
+    return QUALITY_WORDS.get(measure, measure.replace("_", " "))

@@ -2,7 +2,8 @@
 
 Sheets: ``Summary`` (one row per unit), ``Daily production`` (the week's rows of every
 unit, as stored), ``Alarms`` (detected in the week or open at the end of the day),
-``Parameters`` (newest set per unit), ``Outlook`` (forecast and what-if, under the
+``Parameters`` (newest set per unit), ``Data quality`` (per-tag counts of the day),
+``Outlook`` (forecast and what-if, under the
 cautions text). Numbers are the stored values (openpyxl writes 16 significant digits,
 i.e. within 1e-15 relative of the stored double; display formats only round what is
 shown). Time stamps are UTC, written without a zone because the format
@@ -24,7 +25,7 @@ from ..store import GAP_PARTS
 from .content import ReportContent
 from .wording import CAUTIONS
 
-SHEETS = ("Summary", "Daily production", "Alarms", "Parameters", "Outlook")
+SHEETS = ("Summary", "Daily production", "Alarms", "Parameters", "Data quality", "Outlook")
 
 SUMMARY_COLUMNS = ("unit_id", "day", "status", "production_kg", "target_kg", "gap_kg", *GAP_PARTS,
                    "week_production_kg", "week_target_kg", "week_gap_kg", "week_days", "open_alarms",
@@ -37,6 +38,7 @@ PARAMETER_COLUMNS = ("unit_id", "as_of_utc", "name", "value", "std_error", "ci_l
                      "unit_of_measure", "method", "run_id")
 WHATIF_COLUMNS = ("unit_id", "as_of_utc", "lever", "current_value", "proposed_value", "safe_low", "safe_high",
                   "unit_of_measure", "restores_target", "note", "run_id")
+QUALITY_COLUMNS = ("unit_id", "tag", "period_start_utc", "period_end_utc", "measure", "count", "run_id")
 FORECAST_COLUMNS = ("unit_id", "as_of_utc", "activity_now", "activity_needed", "miss_earliest_utc",
                     "miss_expected_utc", "miss_latest_utc", "statement", "run_id")
 
@@ -135,6 +137,12 @@ def write_workbook(content: ReportContent, path: str | Path) -> Path:
     _table(ws, PARAMETER_COLUMNS, _rows(params, PARAMETER_COLUMNS, {"as_of_utc": "as_of"}))
 
     ws = wb.create_sheet(SHEETS[4])
+    frames = [u.quality for u in content.units if len(u.quality)]
+    qual = pd.concat(frames, ignore_index=True) if frames else pd.DataFrame()
+    _table(ws, QUALITY_COLUMNS, _rows(qual, QUALITY_COLUMNS, {"period_start_utc": "period_start",
+                                                             "period_end_utc": "period_end"}))
+
+    ws = wb.create_sheet(SHEETS[5])
     ws.cell(row=1, column=1, value="Cautions").font = Font(bold=True)
     ws.cell(row=2, column=1, value=CAUTIONS).alignment = Alignment(wrap_text=True, vertical="top")
     ws.merge_cells(start_row=2, start_column=1, end_row=2, end_column=8)

@@ -61,6 +61,25 @@ def _frame_columns(frame: pd.DataFrame, allowed: tuple[str, ...], required: tupl
         raise StoreError(f"{what}: {'; '.join(parts)}; allowed columns are {list(allowed)}")
 
 
+def _check_gap(rec: dict, where: str) -> None:
+    """Gap = target - production, and the four parts add up to the gap (within round-off)."""
+    gap, prod, target = rec["gap_kg"], rec["production_kg"], rec["target_kg"]
+    tol = GAP_RTOL * max(1.0, abs(target or 0.0), abs(prod or 0.0))
+    if gap is not None and prod is not None and target is not None and abs(target - prod - gap) > tol:
+        raise StoreError(f"{where}: gap {gap!r} kg is not target - production = {target - prod!r} kg")
+    if gap is None:
+        return
+    parts = {c: rec[c] for c in GAP_PARTS}
+    missing = [c for c, v in parts.items() if v is None]
+    if missing:
+        raise StoreError(f"{where}: gap is {gap!r} kg but part(s) {missing} are missing; the attribution "
+                         "must add up to the gap (put what cannot be judged in gap_data_kg)")
+    total = sum(parts.values())
+    if abs(total - gap) > tol:
+        raise StoreError(f"{where}: gap parts add up to {total!r} kg but the gap is {gap!r} kg; "
+                         "the attribution must add up to the gap")
+
+
 def _float(v):
     if v is None:
         return None
@@ -248,12 +267,7 @@ class RunWriter:
             if not first_day <= day <= last_day:
                 raise StoreError(f"{what}: day {day} does not overlap the run window [{start}, {end})")
             rec = {c: _float(getattr(row, c)) for c in frame.columns}
-            parts = [rec[c] for c in GAP_PARTS]
-            if rec["gap_kg"] is not None and None not in parts:
-                total = sum(parts)
-                if abs(total - rec["gap_kg"]) > GAP_RTOL * max(1.0, abs(rec["gap_kg"])):
-                    raise StoreError(f"{what}: day {day}: gap parts add up to {total!r} kg but the gap is "
-                                     f"{rec['gap_kg']!r} kg; the attribution must add up to the gap")
+            _check_gap(rec, f"{what}: day {day}")
             rec.update(unit_id=unit, day=day, run_id=self.run_id)
             records.append(rec)
         if self._first_time("daily", unit):
