@@ -17,7 +17,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
-from kinetrace.store import open_store
+from kinetrace.store import StoreError, open_store
 
 from .synth import FP, fill_window, series_frame
 
@@ -218,3 +218,41 @@ def test_relative_sqlite_path_is_taken_from_base_dir(tmp_path):
     with store.write_run((W0, W1), config_fingerprint=FP) as run:
         run.set_watermark("R-210", W0)
     assert (tmp_path / "out" / "nested" / "results.sqlite").exists()
+
+
+def test_alarm_from_an_earlier_window_is_closed_by_a_later_run(store_url):
+    """An alarm opened in one window and cleared in the next stays one row, now closed."""
+    store = open_store(store_url)
+    day1, day2, day3 = W0, W0 + pd.Timedelta("1D"), W0 + pd.Timedelta("2D")
+    alarm = {"kind": "drift", "variable": "activity", "onset": day1 + pd.Timedelta("1h"),
+             "detected": day1 + pd.Timedelta("3h"), "magnitude": -0.05, "magnitude_unit": "-",
+             "evidence": "EWMA below its lower limit", "state": "open", "closed": None}
+    with store.write_run((day1, day2), config_fingerprint=FP) as run:
+        run.write_alarms("R-210", pd.DataFrame([alarm]))
+    closed = dict(alarm, state="closed", closed=day2 + pd.Timedelta("6h"), evidence="EWMA back inside its limits")
+    for _ in range(2):                                   # the second pass re-runs the same window
+        with store.write_run((day2, day3), config_fingerprint=FP) as run:
+            run.write_alarms("R-210", pd.DataFrame([closed]))
+            last = run.run_id
+    al = store.alarms("R-210")
+    assert len(al) == 1
+    assert al["state"].iloc[0] == "closed" and al["closed"].iloc[0] == day2 + pd.Timedelta("6h")
+    assert al["run_id"].iloc[0] == last and al["evidence"].iloc[0] == "EWMA back inside its limits"
+    assert store.alarms(state="open").empty
+
+
+def test_several_series_writes_of_one_unit_in_one_run(store_url):
+    """Variables written in separate calls of one run all stay; writing a variable again replaces it."""
+    store = open_store(store_url)
+    f = series_frame(W0, W1, freq="1h")
+    with store.write_run((W0, W1), config_fingerprint=FP) as run:
+        run.write_series("R-210", f[["conversion"]])
+        run.write_series("R-210", f[["temperature"]])
+        run.write_series("R-210", f[["temperature"]] + 1.0)
+    got = store.series("R-210")
+    assert list(got.columns) == ["conversion", "temperature"]
+    np.testing.assert_array_equal(got["temperature"].to_numpy(), f["temperature"].to_numpy() + 1.0)
+    long = store.series("R-210", "conversion", layout="long")
+    assert list(long.columns) == ["variable", "ts", "value", "run_id"] and len(long) == 48
+    with pytest.raises(StoreError, match=r"no variable\(s\) \['yield'\] in the store"):
+        store.series("R-210", ["yield"])
