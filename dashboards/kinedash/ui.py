@@ -1,0 +1,87 @@
+"""Pieces shared by the pages: the store guard, the unit and range pickers, colours, cautions."""
+
+from __future__ import annotations
+
+import datetime as dt
+
+import pandas as pd
+import streamlit as st
+
+from . import cached, source
+
+#: Colours of the dashboard (our own palette).
+COLOURS = {
+    "measured": "#1f6f8b",    # deep teal: a series from the store
+    "fit": "#c2571a",         # burnt orange: a fitted law
+    "band": "#7fb3c8",        # pale teal: an uncertainty band
+    "target": "#4a4e69",      # slate: targets and limits
+    "steady": "#dcedc8",      # pale green: steady windows
+    "envelope": "#b8d4e0",    # min/max envelope of thinned data
+    "alarm": "#a4161a",       # dark red
+}
+
+#: Range choices of the time range picker: label -> days before the unit's last result.
+RANGES = {"last 24 h": 1, "last 7 days": 7, "last 30 days": 30, "last 90 days": 90, "last 365 days": 365,
+          "everything": None, "custom dates": "custom"}
+
+CAUTIONS = (
+    "**Estimates only.** These settings come from fitted models and today's data. Before any change, "
+    "check it against the unit's safe operating envelope, its relief and runaway studies, and your site's "
+    "management-of-change procedure; defer to site procedures, local codes and licensed engineering "
+    "practice. No setting outside the configured safe limits is ever shown."
+)
+
+
+def store_url() -> str:
+    """URL of the store for this page; stops the page with a clear message when it cannot be read."""
+    try:
+        url = source.resolve_store_url()
+        cached.store_for(url)
+    except source.StoreUnavailable as exc:
+        st.error(f"Results store unavailable. {exc}", icon=":material/cloud_off:")
+        st.caption("The dashboard reads the results store only; fill it with `kinetrace check --config <plant>.toml`.")
+        st.stop()
+    return url
+
+
+def pick_unit(url: str, label: str = "Reactor") -> str:
+    """Unit selector (shared by the pages through the session); stops the page when the store is empty."""
+    options = cached.units(url)
+    if not options:
+        st.info("No results yet: the store is there but holds no unit. Run `kinetrace check` to fill it.",
+                icon=":material/hourglass_empty:")
+        st.stop()
+    if st.session_state.get("kt_unit") not in options:
+        st.session_state["kt_unit"] = options[0]
+    return st.selectbox(label, options, key="kt_unit")
+
+
+def pick_range(url: str, unit: str, default: str = "last 30 days", key: str = "kt_range"):
+    """Time range picker ending at the unit's last result; returns (start, end) UTC, half-open."""
+    last = cached.watermark(url, unit)
+    end = (pd.Timestamp.now(tz="UTC") if last is None else pd.Timestamp(last)) + pd.Timedelta("1us")
+    labels = list(RANGES)
+    choice = st.radio("Time range", labels, index=labels.index(default), horizontal=True, key=key)
+    days = RANGES[choice]
+    if days == "custom":
+        first = (end - pd.Timedelta(days=7)).date()
+        got = st.date_input("From / to (UTC days)", value=(first, end.date()), key=key + "_dates")
+        if isinstance(got, (tuple, list)) and len(got) == 2:
+            a, b = got
+            return pd.Timestamp(a, tz="UTC"), pd.Timestamp(b, tz="UTC") + pd.Timedelta(days=1)
+        return pd.Timestamp(first, tz="UTC"), end
+    if days is None:
+        return pd.Timestamp("1970-01-01", tz="UTC"), end
+    return end - pd.Timedelta(days=days), end
+
+
+def not_available(what: str, why: str = "the pipeline has not written it to the store yet") -> None:
+    """The 'not available yet' state of one panel."""
+    st.info(f"{what}: not available yet ({why}).", icon=":material/schedule:")
+
+
+def day_text(ts) -> str:
+    """A date for the page ('not available' when missing)."""
+    if ts is None or (not isinstance(ts, (str, dt.date)) and pd.isna(ts)):
+        return "not available"
+    return pd.Timestamp(ts).strftime("%Y-%m-%d")
