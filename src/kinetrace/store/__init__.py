@@ -117,7 +117,8 @@ References
 
 from .core import SUPPORTED_DIALECTS, Store, fingerprint, open_store
 from .schema import ALARM_STATES, RUN_STATES, SCHEMA_VERSION, StoreError
-from .writer import DAILY_COLUMNS, GAP_PARTS, RunWriter
+from .records import DAILY_COLUMNS, GAP_PARTS
+from .writer import RunWriter
 
 __all__ = [
     "ALARM_STATES", "DAILY_COLUMNS", "GAP_PARTS", "RUN_STATES", "SCHEMA_VERSION", "SUPPORTED_DIALECTS",

@@ -14,8 +14,21 @@ import pandas as pd
 from sqlalchemy import Connection, and_, delete, insert, select, update
 
 from .bulk import insert_series
+from .records import (
+    ALARM_COLUMNS,
+    DAILY_COLUMNS,
+    FORECAST_COLUMNS,
+    PARAMETER_COLUMNS,
+    WHATIF_COLUMNS,
+    alarm_record,
+    as_float,
+    check_gap,
+    forecast_record,
+    frame_columns,
+    parameter_record,
+    whatif_record,
+)
 from .schema import (
-    ALARM_STATES,
     StoreError,
     alarms,
     daily_production,
@@ -29,68 +42,6 @@ from .schema import (
     watermarks,
     whatif,
 )
-
-#: Columns of a daily production frame; the first seven are required. [kg] except hours [h]
-DAILY_COLUMNS = ("production_kg", "target_kg", "gap_kg", "gap_feed_kg", "gap_conversion_kg",
-                 "gap_downtime_kg", "gap_data_kg", "hours_with_data")
-GAP_PARTS = ("gap_feed_kg", "gap_conversion_kg", "gap_downtime_kg", "gap_data_kg")
-PARAMETER_COLUMNS = ("name", "value", "std_error", "ci_low", "ci_high", "ci_level", "unit_of_measure", "method")
-ALARM_COLUMNS = ("kind", "variable", "onset", "detected", "magnitude", "magnitude_unit", "evidence",
-                 "state", "closed")
-FORECAST_COLUMNS = ("activity_now", "activity_needed", "miss_earliest", "miss_expected", "miss_latest",
-                    "statement")
-WHATIF_COLUMNS = ("lever", "current_value", "proposed_value", "safe_low", "safe_high", "unit_of_measure",
-                  "restores_target", "note")
-
-#: Relative tolerance of the check that the gap parts add up to the gap (round-off only). [-]
-GAP_RTOL = 1e-9
-
-
-def _frame_columns(frame: pd.DataFrame, allowed: tuple[str, ...], required: tuple[str, ...],
-                   what: str) -> None:
-    if not isinstance(frame, pd.DataFrame):
-        raise StoreError(f"{what}: expected a pandas DataFrame, got {type(frame).__name__}")
-    unknown = [c for c in frame.columns if c not in allowed]
-    missing = [c for c in required if c not in frame.columns]
-    if unknown or missing:
-        parts = []
-        if missing:
-            parts.append(f"missing column(s) {missing}")
-        if unknown:
-            parts.append(f"unknown column(s) {unknown}")
-        raise StoreError(f"{what}: {'; '.join(parts)}; allowed columns are {list(allowed)}")
-
-
-def _check_gap(rec: dict, where: str) -> None:
-    """Gap = target - production, and the four parts add up to the gap (within round-off)."""
-    gap, prod, target = rec["gap_kg"], rec["production_kg"], rec["target_kg"]
-    tol = GAP_RTOL * max(1.0, abs(target or 0.0), abs(prod or 0.0))
-    if gap is not None and prod is not None and target is not None and abs(target - prod - gap) > tol:
-        raise StoreError(f"{where}: gap {gap!r} kg is not target - production = {target - prod!r} kg")
-    if gap is None:
-        return
-    parts = {c: rec[c] for c in GAP_PARTS}
-    missing = [c for c, v in parts.items() if v is None]
-    if missing:
-        raise StoreError(f"{where}: gap is {gap!r} kg but part(s) {missing} are missing; the attribution "
-                         "must add up to the gap (put what cannot be judged in gap_data_kg)")
-    total = sum(parts.values())
-    if abs(total - gap) > tol:
-        raise StoreError(f"{where}: gap parts add up to {total!r} kg but the gap is {gap!r} kg; "
-                         "the attribution must add up to the gap")
-
-
-def _float(v):
-    if v is None:
-        return None
-    f = float(v)
-    return None if np.isnan(f) else f
-
-
-def _time_or_none(v, what: str):
-    if v is None or (not isinstance(v, str) and pd.isna(v)):
-        return None
-    return to_utc(v, what)
 
 
 class RunWriter:
@@ -251,7 +202,7 @@ class RunWriter:
         """
         unit = self._check_unit(unit)
         what = f"daily production of unit {unit}"
-        _frame_columns(frame, DAILY_COLUMNS, DAILY_COLUMNS[:7], what)
+        frame_columns(frame, DAILY_COLUMNS, DAILY_COLUMNS[:7], what)
         start, end = self.window
         first_day = start.date()
         last_day = (end - pd.Timedelta(microseconds=1)).date()
@@ -266,8 +217,8 @@ class RunWriter:
             seen.add(day)
             if not first_day <= day <= last_day:
                 raise StoreError(f"{what}: day {day} does not overlap the run window [{start}, {end})")
-            rec = {c: _float(getattr(row, c)) for c in frame.columns}
-            _check_gap(rec, f"{what}: day {day}")
+            rec = {c: as_float(getattr(row, c)) for c in frame.columns}
+            check_gap(rec, f"{what}: day {day}")
             rec.update(unit_id=unit, day=day, run_id=self.run_id)
             records.append(rec)
         if self._first_time("daily", unit):
@@ -289,7 +240,7 @@ class RunWriter:
     def _write_as_of(self, table, unit: str, frame: pd.DataFrame, allowed, required, what: str,
                      as_of, key: str | None, convert) -> int:
         unit = self._check_unit(unit)
-        _frame_columns(frame, allowed, required, what)
+        frame_columns(frame, allowed, required, what)
         as_of = self.window[1] if as_of is None else to_utc(as_of, f"{what}: as_of")
         self._in_window(as_of, f"{what}: as_of", closed_right=True)
         records, seen = [], set()
@@ -327,22 +278,8 @@ class RunWriter:
         int
             Rows written.
         """
-        def convert(row, where):
-            name = row.get("name")
-            if not isinstance(name, str) or not name:
-                raise StoreError(f"{where}: parameter name must be a non-empty string, got {name!r}")
-            rec = {c: _float(row.get(c)) for c in ("value", "std_error", "ci_low", "ci_high", "ci_level")}
-            lo, hi, v = rec["ci_low"], rec["ci_high"], rec["value"]
-            if lo is not None and hi is not None and lo > hi:
-                raise StoreError(f"{where}: parameter {name!r} has ci_low {lo} above ci_high {hi}")
-            if v is not None and lo is not None and hi is not None and not lo <= v <= hi:
-                raise StoreError(f"{where}: parameter {name!r} value {v} lies outside its interval [{lo}, {hi}]")
-            rec.update(name=name, unit_of_measure=str(row.get("unit_of_measure") or ""),
-                       method=str(row.get("method") or ""))
-            return rec
-
         return self._write_as_of(parameters, unit, frame, PARAMETER_COLUMNS, ("name", "value"),
-                                 f"parameters of unit {unit}", as_of, "name", convert)
+                                 f"parameters of unit {unit}", as_of, "name", parameter_record)
 
     def write_forecast(self, unit: str, *, activity_now, activity_needed, miss_earliest=None,
                        miss_expected=None, miss_latest=None, statement: str = "", as_of=None) -> int:
@@ -366,19 +303,8 @@ class RunWriter:
                                "miss_earliest": miss_earliest, "miss_expected": miss_expected,
                                "miss_latest": miss_latest, "statement": statement}], dtype=object)
 
-        def convert(row, where):
-            rec = {c: _float(row[c]) for c in ("activity_now", "activity_needed")}
-            times = {c: _time_or_none(row[c], f"{where}: {c}") for c in ("miss_earliest", "miss_expected",
-                                                                         "miss_latest")}
-            known = [t for t in times.values() if t is not None]
-            if known != sorted(known):
-                raise StoreError(f"{where}: miss_earliest <= miss_expected <= miss_latest is required, got "
-                                 f"{times}")
-            rec.update(times, statement=str(row["statement"] or ""))
-            return rec
-
         return self._write_as_of(forecasts, unit, frame, FORECAST_COLUMNS, FORECAST_COLUMNS[:2],
-                                 f"forecast of unit {unit}", as_of, None, convert)
+                                 f"forecast of unit {unit}", as_of, None, forecast_record)
 
     def write_whatif(self, unit: str, frame: pd.DataFrame, *, as_of=None) -> int:
         """Write what-if settings of a unit; a proposal outside its safe limits is refused.
@@ -395,31 +321,9 @@ class RunWriter:
         as_of : Timestamp, optional
             Default: the window end.
         """
-        def convert(row, where):
-            lever = row.get("lever")
-            if not isinstance(lever, str) or not lever:
-                raise StoreError(f"{where}: lever must be a non-empty string, got {lever!r}")
-            rec = {c: _float(row.get(c)) for c in ("current_value", "proposed_value", "safe_low", "safe_high")}
-            lo, hi, p = rec["safe_low"], rec["safe_high"], rec["proposed_value"]
-            if lo is None or hi is None or lo > hi:
-                raise StoreError(f"{where}: lever {lever!r} needs finite safe limits with safe_low <= safe_high, "
-                                 f"got [{lo}, {hi}]")
-            if p is not None and not lo <= p <= hi:
-                raise StoreError(f"{where}: lever {lever!r} proposes {p}, outside its safe limits [{lo}, {hi}]; "
-                                 "a setting outside the safe limits is never stored")
-            restores = row.get("restores_target")
-            if not isinstance(restores, (bool, np.bool_)):
-                raise StoreError(f"{where}: restores_target of lever {lever!r} must be True or False, "
-                                 f"got {restores!r}")
-            if restores and p is None:
-                raise StoreError(f"{where}: lever {lever!r} says it restores the target but proposes no value")
-            rec.update(lever=lever, unit_of_measure=str(row.get("unit_of_measure") or ""),
-                       restores_target=bool(restores), note=str(row.get("note") or ""))
-            return rec
-
         return self._write_as_of(whatif, unit, frame, WHATIF_COLUMNS,
                                  ("lever", "proposed_value", "safe_low", "safe_high", "restores_target"),
-                                 f"what-if of unit {unit}", as_of, "lever", convert)
+                                 f"what-if of unit {unit}", as_of, "lever", whatif_record)
 
     # -- alarms ---------------------------------------------------------------------------
     def write_alarms(self, unit: str, frame: pd.DataFrame) -> int:
@@ -447,31 +351,12 @@ class RunWriter:
         """
         unit = self._check_unit(unit)
         what = f"alarms of unit {unit}"
-        _frame_columns(frame, ALARM_COLUMNS, ("kind", "variable", "detected", "state"), what)
+        frame_columns(frame, ALARM_COLUMNS, ("kind", "variable", "detected", "state"), what)
         start, end = self.window
         inside, before, seen = [], [], set()
         for i, row in enumerate(frame.to_dict("records")):
             where = f"{what}, row {i}"
-            for c in ("kind", "variable"):
-                if not isinstance(row.get(c), str) or not row[c]:
-                    raise StoreError(f"{where}: {c} must be a non-empty string, got {row.get(c)!r}")
-            if row["state"] not in ALARM_STATES:
-                raise StoreError(f"{where}: state {row['state']!r} is not one of {list(ALARM_STATES)}")
-            rec = {
-                "kind": row["kind"], "variable": row["variable"], "state": row["state"],
-                "detected": to_utc(row["detected"], f"{where}: detected"),
-                "onset": _time_or_none(row.get("onset"), f"{where}: onset"),
-                "closed": _time_or_none(row.get("closed"), f"{where}: closed"),
-                "magnitude": _float(row.get("magnitude")),
-                "magnitude_unit": str(row.get("magnitude_unit") or ""),
-                "evidence": str(row.get("evidence") or ""),
-                "unit_id": unit, "run_id": self.run_id,
-            }
-            if rec["onset"] is not None and rec["onset"] > rec["detected"]:
-                raise StoreError(f"{where}: onset {rec['onset']} is after detection {rec['detected']}")
-            if (rec["state"] == "closed") != (rec["closed"] is not None):
-                raise StoreError(f"{where}: a closed alarm needs its closed time and an open one must not "
-                                 f"have one (state {rec['state']!r}, closed {rec['closed']})")
+            rec = alarm_record(row, where, unit, self.run_id)
             if rec["detected"] >= end:
                 raise StoreError(f"{where}: detected {rec['detected']} is after the run window end {end}")
             nk = (rec["kind"], rec["variable"], rec["detected"])
