@@ -43,3 +43,16 @@ def filled_store(tmp_path_factory):
             "evidence": "feed flow fell by 0.35 m3/h in one step", "state": "open", "closed": None}]))
     yield store
     store.close()
+
+
+from tests.store.conftest import pg_db_url  # noqa: E402,F401  (a fresh database on the test server)
+from tests.pg_server import pg_url  # noqa: E402,F401
+
+
+def fill(store):
+    """The same eight runs as ``filled_store`` (used to compare back ends)."""
+    for k in range(8):
+        a = FIRST + pd.Timedelta(days=k)
+        with store.write_run((a, a + pd.Timedelta("1D")), config_fingerprint=FP) as run:
+            fill_window(run, a, a + pd.Timedelta("1D"), freq="1h", seed=k)
+    return store

@@ -234,3 +234,29 @@ def test_report_without_whatif_has_no_suggestion(tmp_path):
     html = files.html.read_text(encoding="utf-8")
     assert "What-if" not in html and files.content.day == DAY
     assert collect(store).units[0].week_days == 1
+
+
+@pytest.mark.postgres
+def test_report_is_the_same_from_postgresql_and_sqlite(tmp_path, pg_db_url):
+    """Every number of the page and every cell of the workbook agree between the two back ends."""
+    from .conftest import fill
+
+    pages, books = [], []
+    for name, url in (("lite", f"sqlite:///{tmp_path / 'r.sqlite'}"), ("pg", pg_db_url)):
+        store = fill(open_store(url))
+        files = build_report(store, tmp_path / name, DAY)
+        p = _Numbers()
+        p.feed(files.html.read_text(encoding="utf-8"))
+        pages.append(p.numbers)
+        wb = openpyxl.load_workbook(files.xlsx)
+        books.append({ws.title: [r for r in ws.iter_rows(values_only=True)] for ws in wb.worksheets})
+        store.close()
+    assert pages[0] == pages[1] and len(pages[0]) > 40
+    assert books[0] == books[1]
+
+
+def test_alert_reasons_from_the_store(filled_store):
+    from kinetrace.report import alert_reasons
+
+    assert alert_reasons(filled_store, DAY, tz="Europe/London") == attention_reasons(
+        collect(filled_store, DAY, tz="Europe/London"))

@@ -74,5 +74,27 @@ def build_report(store: Store, out_dir, day=None, *, tz: str = "UTC", site: str 
     return ReportFiles(html=html, xlsx=xlsx, content=content)
 
 
+def alert_reasons(store: Store, day=None, *, tz: str = "UTC") -> list[str]:
+    """Why a scheduler should alert for a day: units below target or without data, open alarms.
+
+    An empty list means every unit met its target with no open alarm; a command such
+    as ``kinetrace check`` can exit non-zero when the list is not empty.
+
+    Parameters
+    ----------
+    store : Store
+        The results store.
+    day : date or str, optional
+        Production day; default the latest stored.
+    tz : str
+        Site time zone (IANA name).
+
+    Returns
+    -------
+    list of str
+    """
+    return attention_reasons(collect(store, day, tz=tz))
+
+
 __all__ = ["CAUTIONS", "SHEETS", "STATUSES", "Figure", "ReportContent", "ReportError", "ReportFiles",
-           "UnitReport", "attention_reasons", "build_report", "collect", "render_html", "write_workbook"]
+           "UnitReport", "alert_reasons", "attention_reasons", "build_report", "collect", "render_html", "write_workbook"]
