@@ -1,13 +1,19 @@
 """When will the unit stop making its target? Activity needed, and the date the trend crosses it.
 
-The activity needed is found from the steady-state CSTR solution of the main
-reaction's rate law (:mod:`kinetrace.kinetics.cstr`): the production target
-fixes the extent and hence the conversion of the key reactant,
-X_req = -nu_A (target/Q - C_P0) / (nu_P C_A0), and because every rate law here
-is linear in k, the design equation gives k_req = xi / (tau g(C_req, T))
-exactly; the activity needed is a_req = k_req / k_fresh(T) (Butt & Petersen
-1988 definition of activity). No activity can meet a target that needs
-X_req >= 1 or a conversion beyond equilibrium.
+The activity needed comes from the steady-state CSTR model of the unit
+(:mod:`kinetrace.monitor._unit`): the catalyst activity multiplies the main
+reaction's rate constant, other reactions with rate laws keep theirs.
+
+* One reaction: the target fixes the extent and the conversion of the key
+  reactant, X_req = -nu_A (target/Q - C_P0) / (nu_P C_A0); every rate law here is
+  linear in k, so the design equation gives k_req = xi / (tau g(C_req, T)) exactly
+  (:func:`kinetrace.kinetics.cstr.required_rate_constant`) and a_req = k_req / k_fresh(T).
+* Several reactions: P(a) = target is solved for a by a bracketed root search
+  (Brent) on the multi-reaction steady state.
+
+Activity is as defined by Butt & Petersen (1988). No activity can meet a target
+that needs complete conversion, a conversion beyond equilibrium, or more than
+the feed can give.
 
 The crossing date is the first time the fitted decay trend (and the ends of
 its prediction band) fall below a_req, searched on an hourly grid from
@@ -32,7 +38,7 @@ import pandas as pd
 from kinetrace.config.model import UnitModel
 from kinetrace.errors import KinetraceError
 from kinetrace.monitor._common import format_day, format_range, utc_timestamp
-from kinetrace.monitor._unit import main_reaction
+from kinetrace.monitor._unit import unit_reactions
 from kinetrace.monitor.trend import ActivityTrend
 
 __all__ = ["required_activity", "Forecast", "forecast_crossing"]
@@ -54,7 +60,7 @@ def required_activity(
     Parameters
     ----------
     model : UnitModel
-        The unit (main reaction, rate law, feed, target).
+        The unit (reactions and rate laws, feed, target).
     feed_flow : float or array_like
         Feed flow, present or planned. [m^3/s]
     temperature : float or array_like
@@ -68,7 +74,8 @@ def required_activity(
     fresh_k_ref : float, optional
         Fresh-catalyst k at the reference temperature [SI]; default the rate law's k_ref.
     yield_factor : float
-        Fraction of the main reaction's product that survives side reactions. [-]
+        Fraction of the product formed that the model should count, for losses it
+        does not carry (side reactions with a configured rate law are modelled). [-]
 
     Returns
     -------
@@ -84,9 +91,9 @@ def required_activity(
     --------
     See :func:`kinetrace.monitor.whatif.production_at` for the round trip.
     """
-    rx = main_reaction(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
+    rx = unit_reactions(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
     target = model.target_rate if target_rate is None else float(target_rate)
-    a, _ = rx.required_activity(feed_flow, temperature, volume, target)
+    a = rx.required_activity(feed_flow, temperature, volume, target)
     return float(a) if np.ndim(a) == 0 else a
 
 

@@ -8,8 +8,9 @@ Three levers, one at a time, the others held at their present values:
                     ``volume_limits`` [m^3] given by the caller (e.g. from the
                     configured level limits and the level-volume table)
 
-Production at a setting comes from the steady-state CSTR solution of the main
-reaction's rate law with k = a k_fresh(T) (:mod:`kinetrace.kinetics.cstr`).
+Production at a setting comes from the steady-state CSTR model of the unit, the
+main reaction at k = a k_fresh(T) and any side reactions at their configured
+constants (:mod:`kinetrace.monitor._unit`, :mod:`kinetrace.kinetics.cstr`).
 The search evaluates production on a grid spanning the safe range only, takes
 the lowest setting whose production reaches the target and refines it by
 Brent's method between grid points; it never evaluates, let alone returns, a
@@ -41,7 +42,7 @@ from scipy import optimize
 from kinetrace.config.model import UnitModel
 from kinetrace.errors import KinetraceError
 from kinetrace.monitor._common import CAUTIONS
-from kinetrace.monitor._unit import MainReaction, main_reaction
+from kinetrace.monitor._unit import UnitReactions, unit_reactions
 
 __all__ = [
     "WhatIf",
@@ -167,7 +168,7 @@ def production_at(
     >>> round(required_activity(m, feed_flow=1e-3, temperature=350.0, volume=0.4), 6)
     0.25
     """
-    rx = main_reaction(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
+    rx = unit_reactions(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
     p = rx.production(activity, feed_flow, temperature, volume)
     return float(p) if np.ndim(p) == 0 else p
 
@@ -242,7 +243,7 @@ def _message(lever: str, feasible: bool, setting, current, limits, unit, product
             f"the model predicts there is {production:.4g} mol/s against {target:.4g} mol/s. " + extra).strip()
 
 
-def _lever_result(rx: MainReaction, lever, *, activity, feed_flow, temperature, volume, target, limits):
+def _lever_result(rx: UnitReactions, lever, *, activity, feed_flow, temperature, volume, target, limits):
     if lever == "temperature":
         current = temperature
         prod = lambda x: rx.production(activity, feed_flow, x, volume)  # noqa: E731
@@ -333,7 +334,7 @@ def what_if(
     >>> res[0].feasible, 350.0 < res[0].setting <= 370.0, "management of change" in res[0].cautions
     (True, True, True)
     """
-    rx = main_reaction(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
+    rx = unit_reactions(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
     target = model.target_rate if target_rate is None else float(target_rate)
     for name, v in (("activity", activity), ("feed_flow", feed_flow), ("temperature", temperature),
                     ("volume", volume)):
