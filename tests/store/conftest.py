@@ -4,8 +4,8 @@ The PostgreSQL server is the session-wide throwaway cluster of ``tests/pg_server
 each test gets its own database on it, dropped afterwards.
 """
 
-import itertools
 import sys
+import uuid
 from pathlib import Path
 
 import pytest
@@ -18,8 +18,6 @@ if _ROOT not in sys.path:
 
 from tests.pg_server import pg_url  # noqa: E402,F401  (fixture re-exported for this folder)
 
-_counter = itertools.count()
-
 
 @pytest.fixture
 def sqlite_url(tmp_path):
@@ -30,7 +28,7 @@ def sqlite_url(tmp_path):
 @pytest.fixture
 def pg_db_url(pg_url):
     """URL of a new, empty database on the test PostgreSQL server (dropped after the test)."""
-    name = f"kt_store_{next(_counter)}"
+    name = f"kt_store_{uuid.uuid4().hex[:12]}"
     admin = create_engine(pg_url, isolation_level="AUTOCOMMIT")
     with admin.connect() as conn:
         conn.execute(text(f'DROP DATABASE IF EXISTS "{name}" WITH (FORCE)'))

@@ -96,7 +96,8 @@ class RunWriter:
         frame : DataFrame
             Tz-aware DatetimeIndex inside the run window, unique; numeric or boolean
             columns named after the variables (booleans are stored as 0/1). NaN is
-            stored as NULL. [SI unit of each variable]
+            stored as NULL. Text columns are refused: encode them as numbers or keep
+            them out of the series. [SI unit of each variable]
         units : dict, optional
             Unit of measure of each variable, e.g. ``{"conversion": "-"}``; kept in
             ``series_keys``. A variable's unit cannot change once stored.
