@@ -12,12 +12,23 @@
 Nothing is recomputed: every number is a stored value or a sum of stored daily rows,
 and the page names the row of each number (``data-src``).
 
->>> from kinetrace.store import open_store
+>>> import tempfile
+>>> import pandas as pd
+>>> from kinetrace.store import fingerprint, open_store
 >>> store = open_store("sqlite://")
 >>> collect(store)
 Traceback (most recent call last):
 ...
 kinetrace.report.content.ReportError: the results store holds no daily production rows; run the daily check first
+>>> day = pd.DataFrame({"production_kg": [23000.0], "target_kg": [24000.0], "gap_kg": [1000.0],
+...                     "gap_feed_kg": [600.0], "gap_conversion_kg": [400.0], "gap_downtime_kg": [0.0],
+...                     "gap_data_kg": [0.0]}, index=["2026-11-30"])
+>>> with store.write_run(("2026-11-30T00:00Z", "2026-12-01T00:00Z"),
+...                      config_fingerprint=fingerprint(b"example")) as run:
+...     _ = run.write_daily("R-210", day)
+>>> files = build_report(store, tempfile.mkdtemp())
+>>> files.html.name, files.content.units[0].status, alert_reasons(store)
+('kinetrace-day-2026-11-30.html', 'short of target', ['unit R-210: short of target on 2026-11-30'])
 """
 
 from __future__ import annotations
