@@ -11,11 +11,13 @@ files, database or configuration reading. Modules:
 * :mod:`.production` totals per day and shift, exact attribution of the gap
 * :mod:`.forecast`   activity needed for the target, date the trend crosses it
 * :mod:`.whatif`     temperature, feed flow or residence time restoring the target, inside safe limits
+* :mod:`.assess`     the monitoring stage of one unit, chaining the above on its back-calculated series
 """
 
 from kinetrace.monitor._common import CAUTIONS
 from kinetrace.monitor.alarms import Alarm
 from kinetrace.monitor.arl import cusum_arl, cusum_limit_for_arl, ewma_arl, ewma_limit_for_arl
+from kinetrace.monitor.assess import UnitAssessment, assess_unit
 from kinetrace.monitor.charts import (
     ChartResult,
     cusum_alarms,
@@ -34,8 +36,8 @@ from kinetrace.monitor.trend import ActivityTrend, catalyst_changes, fit_activit
 from kinetrace.monitor.whatif import WhatIf, list_levers, production_at, volume_limits_from_level, what_if
 
 __all__ = [
-    "CAUTIONS", "CAUSES", "Alarm", "ActivityTrend", "ChartResult", "DecayFit", "Forecast", "WhatIf",
-    "attribute_shortfall", "catalyst_changes", "cusum_alarms", "cusum_arl", "cusum_limit_for_arl",
+    "CAUTIONS", "CAUSES", "Alarm", "ActivityTrend", "ChartResult", "DecayFit", "Forecast", "UnitAssessment",
+    "WhatIf", "assess_unit", "attribute_shortfall", "catalyst_changes", "cusum_alarms", "cusum_arl", "cusum_limit_for_arl",
     "cusum_statistic", "decay_activity", "detect_drift", "detect_steps", "ewma_alarms", "ewma_arl",
     "ewma_limit_for_arl", "ewma_statistic", "fit_activity_trend", "fit_decay", "forecast_crossing",
     "in_control_estimates", "list_decay_laws", "list_drift_methods", "list_levers", "period_labels",
