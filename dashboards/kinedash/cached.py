@@ -41,6 +41,11 @@ def watermark(url: str, unit: str):
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
+def first_time(url: str, unit: str):
+    return source.first_time(store_for(url), unit)
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
 def chart_series(url: str, unit: str, variables: tuple, start, end, points: int = source.CHART_POINTS) -> dict:
     return source.chart_series(store_for(url), unit, list(variables), start, end, points=points)
 

@@ -127,6 +127,15 @@ def _key_ids(store: Store, unit: str, variables) -> dict[str, int]:
     return {v: known[v] for v in variables if v in known}
 
 
+def first_time(store: Store, unit: str):
+    """Earliest time stamp of any series of a unit, ``None`` when it has none. [UTC]"""
+    with store.engine.connect() as conn:
+        ts = ts_as_epoch_us(conn)
+        keys = select(series_keys.c.key_id).where(series_keys.c.unit_id == unit)
+        got = conn.execute(select(func.min(ts)).where(series_values.c.key_id.in_(keys))).scalar()
+    return None if got is None else pd.Timestamp(int(got), unit="us", tz="UTC")
+
+
 def estimated_rows(store: Store, key_id: int, start, end) -> int:
     """Rows of one series in ``[start, end)`` estimated from the spacing of its first two. [-]"""
     with store.engine.connect() as conn:

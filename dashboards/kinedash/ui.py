@@ -51,28 +51,36 @@ def pick_unit(url: str, label: str = "Reactor") -> str:
         st.info("No results yet: the store is there but holds no unit. Run `kinetrace check` to fill it.",
                 icon=":material/hourglass_empty:")
         st.stop()
-    if st.session_state.get("kt_unit") not in options:
-        st.session_state["kt_unit"] = options[0]
-    return st.selectbox(label, options, key="kt_unit")
+    state = st.session_state
+    # widget state does not survive a page switch; the choice is kept under a plain key too
+    if state.get("kt_unit_kept") not in options:
+        state["kt_unit_kept"] = options[0]
+    state["kt_unit"] = state["kt_unit_kept"]
+    return st.selectbox(label, options, key="kt_unit",
+                        on_change=lambda: state.__setitem__("kt_unit_kept", state["kt_unit"]))
 
 
 def pick_range(url: str, unit: str, default: str = "last 30 days", key: str = "kt_range"):
-    """Time range picker ending at the unit's last result; returns (start, end) UTC, half-open."""
+    """Time range picker ending at the unit's last result; returns (start, end) UTC, half-open.
+
+    Ranges start no earlier than the unit's first result (so buckets are not wasted)."""
     last = cached.watermark(url, unit)
+    first = cached.first_time(url, unit)
     end = (pd.Timestamp.now(tz="UTC") if last is None else pd.Timestamp(last)) + pd.Timedelta("1us")
     labels = list(RANGES)
     choice = st.radio("Time range", labels, index=labels.index(default), horizontal=True, key=key)
     days = RANGES[choice]
     if days == "custom":
-        first = (end - pd.Timedelta(days=7)).date()
-        got = st.date_input("From / to (UTC days)", value=(first, end.date()), key=key + "_dates")
+        week = (end - pd.Timedelta(days=7)).date()
+        got = st.date_input("From / to (UTC days)", value=(week, end.date()), key=key + "_dates")
         if isinstance(got, (tuple, list)) and len(got) == 2:
             a, b = got
             return pd.Timestamp(a, tz="UTC"), pd.Timestamp(b, tz="UTC") + pd.Timedelta(days=1)
-        return pd.Timestamp(first, tz="UTC"), end
-    if days is None:
-        return pd.Timestamp("1970-01-01", tz="UTC"), end
-    return end - pd.Timedelta(days=days), end
+        return pd.Timestamp(week, tz="UTC"), end
+    start = end - pd.Timedelta(days=days) if days is not None else (first or end - pd.Timedelta(days=1))
+    if first is not None and start < first:
+        start = first
+    return start, end
 
 
 def not_available(what: str, why: str = "the pipeline has not written it to the store yet") -> None:

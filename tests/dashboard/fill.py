@@ -26,7 +26,8 @@ UNITS_OF = {"feed_flow": "m3/s", "outlet_flow": "m3/s", "temperature": "K", "vol
 
 def unit_series(unit: str, start, end, freq: str = "1h", *, seed: int = 0, reconciliation: bool = True,
                 steady: bool = True) -> pd.DataFrame:
-    """Wide frame of result series of one unit on ``[start, end)`` (SI units)."""
+    """Wide frame of result series of one unit on ``[start, end)`` (SI units); without
+    ``steady`` the unit never reaches a steady window (flag all 0)."""
     idx = pd.date_range(start, end, freq=freq, tz="UTC", inclusive="left")
     n = len(idx)
     rng = np.random.default_rng(seed + (0 if unit == "R-210" else 7))
@@ -52,8 +53,7 @@ def unit_series(unit: str, start, end, freq: str = "1h", *, seed: int = 0, recon
         "activity_fit": np.exp(-kd * days), "activity_band_low": np.exp(-kd * days) - 0.03,
         "activity_band_high": np.exp(-kd * days) + 0.03,
     }, index=idx)
-    if steady:
-        frame["steady"] = (np.sin(2 * np.pi * days / 2.0) > -0.3).astype(float)
+    frame["steady"] = (np.sin(2 * np.pi * days / 2.0) > -0.3).astype(float) if steady else np.zeros(n)
     if reconciliation:
         frame["closure:total_mass"] = 0.002 * rng.standard_normal(n)
         frame["global_test"] = rng.chisquare(3, n)
@@ -102,8 +102,6 @@ def fill_store(url: str, start="2026-09-01T00:00Z", end="2026-12-01T00:00Z", fre
         for i, unit in enumerate(units):
             frame = unit_series(unit, start, end, freq, seed=i, reconciliation=reconciliation,
                                 steady=(unit != "R-220") or extras)
-            units_of = {c: UNITS_OF.get(c.split(":")[0] if c.split(":")[0] in ("closure",) else c, "")
-                        for c in frame.columns}
             units_of = {c: UNITS_OF.get(c, "1/s" if c.startswith("k_") else "") for c in frame.columns}
             run.write_series(unit, frame, units=units_of)
             run.write_daily(unit, daily_rows(unit, frame))
