@@ -21,7 +21,7 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from sqlalchemy import BigInteger, Connection, cast, extract, select, type_coerce
+from sqlalchemy import BigInteger, Connection, and_, cast, extract, select, true, type_coerce
 
 from .schema import series_values
 
@@ -146,11 +146,7 @@ def read_series_rows(conn: Connection, key_ids: list[int], start_us: int | None,
     ts_expr = ts_as_epoch_us(conn).label("ts_us")
     stmt = select(series_values.c.key_id, ts_expr, series_values.c.value, series_values.c.run_id)
     stmt = stmt.where(series_values.c.key_id.in_(key_ids))
-    raw_ts = type_coerce(series_values.c.ts, BigInteger)
-    if start_us is not None:
-        stmt = stmt.where(_ts_bound(conn, raw_ts, start_us, ">="))
-    if end_us is not None:
-        stmt = stmt.where(_ts_bound(conn, raw_ts, end_us, "<"))
+    stmt = stmt.where(ts_range_condition(conn, start_us, end_us))
     stmt = stmt.order_by(series_values.c.key_id, series_values.c.ts)
     result = conn.execute(stmt)
     try:
@@ -167,10 +163,31 @@ def read_series_rows(conn: Connection, key_ids: list[int], start_us: int | None,
     })
 
 
-def _ts_bound(conn: Connection, raw_ts, bound_us: int, op: str):
-    """Comparison of the ts column with a bound, using the column's own type (index-friendly)."""
+def ts_range_condition(conn: Connection, start_us: int | None, end_us: int | None):
+    """Condition ``start <= series_values.ts < end`` that uses the primary-key index on both back ends.
+
+    Parameters
+    ----------
+    conn : Connection
+        Open connection (its dialect picks the form).
+    start_us, end_us : int or None
+        Bounds as microseconds since the Unix epoch; ``None`` leaves a side open. [us]
+
+    Returns
+    -------
+    SQL expression
+        Compares the stored column itself (timestamptz on PostgreSQL, integer on
+        SQLite), never a function of it, so the index on ``(key_id, ts)`` serves the range.
+    """
+    conds = []
     if conn.dialect.name == "postgresql":
         col = series_values.c.ts
-        bound = pd.Timestamp(bound_us, unit="us", tz="UTC")
-        return col >= bound if op == ">=" else col < bound
-    return raw_ts >= bound_us if op == ">=" else raw_ts < bound_us
+        to_ts = lambda us: pd.Timestamp(us, unit="us", tz="UTC")  # noqa: E731
+    else:
+        col = type_coerce(series_values.c.ts, BigInteger)
+        to_ts = int
+    if start_us is not None:
+        conds.append(col >= to_ts(start_us))
+    if end_us is not None:
+        conds.append(col < to_ts(end_us))
+    return and_(true(), *conds)
