@@ -102,9 +102,50 @@ def test_small_blocks_give_the_same_frame(df, tmp_path, reference, monkeypatch):
     _same(_read(tmp_path, {"kind": "csv", "path": "long.csv"}), reference)
 
 
-def test_sqlite(df, tmp_path, reference):
+@pytest.mark.parametrize("bulk", [True, False], ids=["group-concat", "streamed-select"])
+def test_sqlite(df, tmp_path, reference, monkeypatch, bulk):
+    from kinetrace.ingest import sql_source
+
+    monkeypatch.setattr(sql_source, "USE_SQLITE_BULK", bulk)
     write_sqlite(df, tmp_path / "h.sqlite")
-    _same(_read(tmp_path, {"kind": "sqlite", "path": "h.sqlite", "chunk_rows": 1000}), reference)
+    got = _read(tmp_path, {"kind": "sqlite", "path": "h.sqlite", "chunk_rows": 1000})
+    _same(got, reference)
+    assert got.source_report["chunks"] * 1000 >= got.source_report["rows"] > 0
+
+
+def test_sqlite_odd_values_and_texts(tmp_path):
+    """Text in a REAL column, commas and quotes in codes, NULLs: both SQLite paths give the same fates."""
+    import sqlite3
+
+    from kinetrace.ingest import sql_source
+
+    df = readings(hours=1, seed=3)
+    write_sqlite(df, tmp_path / "h.sqlite")
+    con = sqlite3.connect(tmp_path / "h.sqlite")
+    con.executemany("INSERT INTO readings VALUES (?,?,?,?)", [
+        ("2026-09-01T00:00:30Z", "CB2:R220_TEMP.F", "abc", "OK"),
+        ("2026-09-01T00:01:30Z", "CB2:R220_TEMP.F", None, 'BAD,"x"'),
+        ("2026-09-01T00:02:30Z", "CB2:R220_TEMP.F", 151.0, None),
+        (None, "CB2:R220_TEMP.F", 150.0, "OK"),
+        ("2026-09-01T00:03:30Z", "CB2:R220_TEMP.F", 1e308, "OK"),
+        ("2026-09-01T00:04:30Z", "CB2:R220_TEMP.F", 3, "OK")])
+    con.commit()
+    con.close()
+    cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"]}, grid="10 min")
+    out = []
+    for bulk in (True, False):
+        sql_source.USE_SQLITE_BULK = bulk
+        try:
+            out.append(read_unit(cfg, "R-220", config_path=tmp_path / "p.toml"))
+        finally:
+            sql_source.USE_SQLITE_BULK = True
+    a, b = out
+    pd.testing.assert_frame_equal(a.quality, b.quality)
+    pd.testing.assert_frame_equal(a.values, b.values)
+    q = a.quality.loc["CB2:R220_TEMP.F"]
+    # abc; BAD and a missing code; no time; 1e308 and 3 degF outside [32, 300]
+    assert (q["bad_value"], q["bad_quality_code"], q["bad_timestamp"], q["out_of_range"]) == (1, 2, 1, 2)
+    assert q["good"] == 60
 
 
 def test_sqlite_pushes_the_window_into_sql(df, tmp_path):

@@ -80,13 +80,16 @@ def subset_parsed(parsed, rows: np.ndarray):
     return utc[rows], status[rows], second[rows], uniq, (codes[rows] if codes is not None else None)
 
 
-def _codes(arr: pa.Array) -> tuple[np.ndarray, list]:
+def _codes(arr: pa.Array, as_arrow: bool = False) -> tuple[np.ndarray, list]:
+    """Dictionary codes of an array (-1 for null) and its distinct values (list, or pyarrow array)."""
     d = arr if pa.types.is_dictionary(arr.type) else pc.dictionary_encode(arr)
     if isinstance(d, pa.ChunkedArray):
         d = d.combine_chunks()
     idx = d.indices.to_numpy(zero_copy_only=False)
-    idx = np.where(d.indices.is_null().to_numpy(zero_copy_only=False), -1, idx).astype(np.int64)
-    return idx, d.dictionary.to_pylist()
+    if d.indices.null_count:
+        idx = np.where(d.indices.is_null().to_numpy(zero_copy_only=False), -1, idx)
+    idx = idx.astype(np.int64)
+    return idx, (d.dictionary if as_arrow else d.dictionary.to_pylist())
 
 
 class Collector:
@@ -144,9 +147,21 @@ class Collector:
             return utc, np.where(utc == NAT, BAD_TIME, GOOD).astype(np.int8), utc, None, None
         if not (pa.types.is_string(ts.type) or pa.types.is_large_string(ts.type) or pa.types.is_dictionary(ts.type)):
             ts = pc.cast(ts, pa.string())
-        codes, uniq = _codes(ts)
-        u_utc, u_st, u_sec = parse_timestamps(uniq, self.source.timezone, dst_ambiguous=self.source.dst_ambiguous,
-                                              dst_missing=self.source.dst_missing)
+        codes, dictionary = _codes(ts, as_arrow=True)
+        fast = None
+        if self.source.timezone is None:
+            try:   # every distinct text ISO 8601 with an offset: pyarrow parses them all at once
+                fast = pc.cast(dictionary, pa.timestamp("ns", tz="UTC"))
+            except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+                fast = None
+        uniq = dictionary.to_pylist() if fast is None or fast.null_count else None
+        if uniq is None:
+            u_utc = fast.cast(pa.int64()).to_numpy(zero_copy_only=False)
+            u_st = np.zeros(len(dictionary), np.int8)
+            u_sec = u_utc
+        else:
+            u_utc, u_st, u_sec = parse_timestamps(uniq, self.source.timezone, dst_ambiguous=self.source.dst_ambiguous,
+                                                  dst_missing=self.source.dst_missing)
         u_utc, u_st, u_sec = np.r_[u_utc, NAT], np.r_[u_st, BAD_TIME].astype(np.int8), np.r_[u_sec, NAT]
         return u_utc[codes], u_st[codes], u_sec[codes], uniq, codes
 
@@ -219,13 +234,10 @@ class Collector:
         fate = status.copy()
         if quality is not None:
             qcodes, qnames = _codes(quality)
-            for i in np.unique(tix):
-                good = np.array([q in self.good[i] for q in qnames] + [False], dtype=bool)
-                rows = tix == i
-                bad_q = ~good[qcodes[rows]]
-                f = fate[rows]
-                f[((f == GOOD) | (f == AMBIGUOUS_TIME)) & bad_q] = BAD_QUALITY
-                fate[rows] = f
+            # good[tag, code]: is this code good for this tag (last column: no code at all)
+            good = np.array([[q in g for q in qnames] + [False] for g in self.good], dtype=bool)
+            bad_q = ~good[tix, qcodes]
+            fate[((fate == GOOD) | (fate == AMBIGUOUS_TIME)) & bad_q] = BAD_QUALITY
         bad_v = ((fate == GOOD) | (fate == AMBIGUOUS_TIME)) & ~np.isfinite(vals)
         fate[bad_v] = BAD_VALUE
         if locate is not None and (bad_v & unreadable).any():
@@ -241,8 +253,9 @@ class Collector:
         if not inside.all():
             self.outside += np.bincount(tix[~inside], minlength=len(self.tags))
             utc, second, vals, fate, tix = utc[inside], second[inside], vals[inside], fate[inside], tix[inside]
-        order = np.argsort(tix, kind="stable")
-        bounds = np.searchsorted(tix[order], np.arange(len(self.tags) + 1))
+        small = tix.astype(np.int16) if len(self.tags) < 32_000 else tix
+        order = np.argsort(small, kind="stable")          # radix sort for small integer keys
+        bounds = np.searchsorted(small[order], np.arange(len(self.tags) + 1))
         for i in range(len(self.tags)):
             a, b = bounds[i], bounds[i + 1]
             if a == b:

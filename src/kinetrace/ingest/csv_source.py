@@ -144,6 +144,68 @@ def _drop_blank_rows(table: pa.Table, locate, counts: dict):
     return table.take(pa.array(rows)), (lambda r: locate(rows[np.asarray(r, dtype=np.int64)]))
 
 
+def _fast_types(header: list[str], source: Source, layout: str) -> dict:
+    """Column types for the fast path: numbers and UTC times parsed by pyarrow itself."""
+    c = source.columns
+    dict_t = pa.dictionary(pa.int32(), pa.string())
+    num = pa.float64() if source.decimal == "." else pa.string()
+    ts = dict_t   # the distinct time texts are parsed once each by the collector
+    if layout == "long":
+        types = {h: pa.string() for h in header}
+        types.update({c.timestamp: ts, c.tag: dict_t, c.value: num})
+        if c.quality and c.quality in header:
+            types[c.quality] = dict_t
+        return types
+    return {h: (ts if h == c.timestamp else num) for h in header}
+
+
+def parse_block(buf: bytes, header: list[str], source: Source, layout: str, name: str, first_line: int
+                ) -> tuple[pa.Table, list[tuple[int, str, int, int]], int]:
+    """Parse one block of whole lines; returns the table, its rejected rows (row index, text, fields,
+    expected) and the number of lines in the block.
+
+    Fast path: pyarrow converts numbers and UTC times itself, in parallel. If any
+    line is rejected or any cell does not convert, the block is parsed again
+    single-threaded with every column as text (rows keep their line numbers and
+    each cell is judged by the collector), so both paths give the same fates.
+    """
+    common = dict(strings_can_be_null=True, quoted_strings_can_be_null=True, null_values=[""])
+    try:
+        table = pcsv.read_csv(
+            pa.py_buffer(buf),
+            read_options=pcsv.ReadOptions(column_names=header, use_threads=True, block_size=1 << 20),
+            parse_options=pcsv.ParseOptions(delimiter=source.delimiter, ignore_empty_lines=False),
+            convert_options=pcsv.ConvertOptions(column_types=_fast_types(header, source, layout), **common))
+        # no line was rejected (else pyarrow raised): every line is a row, a blank line a row of nulls
+        return table.unify_dictionaries(), [], table.num_rows
+    except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
+        pass
+    n_lines = buf.count(b"\n") + (0 if buf.endswith(b"\n") else 1)
+    try:
+        buf.decode("utf-8")
+    except UnicodeDecodeError as exc:
+        bad_line = first_line + buf[: exc.start].count(b"\n")
+        raise IngestError(name, [Problem(f"{name}:{bad_line}", f"line is not UTF-8 text (byte "
+                                         f"0x{buf[exc.start]:02x}); export the file as UTF-8")]) from None
+    bad: list[tuple[int, str, int, int]] = []
+
+    def handler(row):
+        bad.append(((row.number or 1) - 1, row.text or "", row.actual_columns, row.expected_columns))
+        return "skip"
+
+    try:
+        table = pcsv.read_csv(
+            io.BytesIO(buf),
+            read_options=pcsv.ReadOptions(column_names=header, use_threads=False, block_size=len(buf) + 1),
+            parse_options=pcsv.ParseOptions(delimiter=source.delimiter, invalid_row_handler=handler,
+                                            ignore_empty_lines=False),
+            convert_options=pcsv.ConvertOptions(column_types={h: pa.string() for h in header}, **common))
+    except (pa.ArrowInvalid, UnicodeDecodeError) as exc:
+        raise IngestError(name, [Problem(f"{name}:{first_line}-{first_line + n_lines - 1}",
+                                         f"cannot parse as CSV: {exc}")]) from None
+    return table, bad, n_lines
+
+
 def read_csv_file(path: Path, source: Source, collector: Collector, tags: dict[str, Tag],
                   block_bytes: int = BLOCK_BYTES) -> dict:
     """Read one CSV file into ``collector``; returns line counts of the file.
@@ -189,40 +251,15 @@ def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
             break
         if not buf.endswith(b"\n"):
             buf += f.readline()
-        n_lines = buf.count(b"\n") + (0 if buf.endswith(b"\n") else 1)
-        try:
-            buf.decode("utf-8")
-        except UnicodeDecodeError as exc:
-            bad_line = next_line + buf[: exc.start].count(b"\n")
-            raise IngestError(name, [Problem(f"{name}:{bad_line}", f"line is not UTF-8 text (byte "
-                                             f"0x{buf[exc.start]:02x}); export the file as UTF-8")]) from None
-        invalid: list[int] = []
-
-        def handler(row, _inv=invalid, _first=next_line):
-            k = (row.number or 1) - 1
-            _inv.append(k)
-            text = (row.text or "").strip()
-            if text == "":
+        table, bad_rows, n_lines = parse_block(buf, header, source, layout, name, next_line)
+        invalid = [k for k, _, _, _ in bad_rows]
+        for k, text, actual, expected in bad_rows:
+            if text.strip() == "":
                 counts["blank_lines"] += 1
             else:
                 counts["malformed_lines"] += 1
-                collector.add_note(f"{name}:{_first + k}",
-                                   f"malformed line: {row.actual_columns} fields, expected {row.expected_columns}: "
-                                   f"{text[:80]!r}; counted, not used")
-            return "skip"
-
-        try:
-            table = pcsv.read_csv(
-                io.BytesIO(buf),
-                read_options=pcsv.ReadOptions(column_names=header, use_threads=False, block_size=len(buf) + 1),
-                parse_options=pcsv.ParseOptions(delimiter=source.delimiter, invalid_row_handler=handler,
-                                                ignore_empty_lines=False),
-                convert_options=pcsv.ConvertOptions(column_types={h: pa.string() for h in header},
-                                                    strings_can_be_null=True, quoted_strings_can_be_null=True,
-                                                    null_values=[""]))
-        except (pa.ArrowInvalid, UnicodeDecodeError) as exc:
-            raise IngestError(name, [Problem(f"{name}:{next_line}-{next_line + n_lines - 1}",
-                                             f"cannot parse as CSV: {exc}")]) from None
+                collector.add_note(f"{name}:{next_line + k}", f"malformed line: {actual} fields, expected {expected}: "
+                                   f"{text.strip()[:80]!r}; counted, not used")
         locate = _Lines(name, next_line, table.num_rows, invalid)
         table, locate = _drop_blank_rows(table, locate, counts)
         if table.num_rows:

@@ -244,10 +244,7 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
         rows.append(row)
         bad = ~g
         if bad.any():
-            flagged.append(pd.DataFrame({
-                "tag": t.tag,
-                "timestamp": pd.to_datetime(np.where(ts[bad] == NAT, np.iinfo(np.int64).min, ts[bad]), utc=True),
-                "value": val[bad], "fate": [FATE_NAMES[int(k)] for k in fate[bad]]}))
+            flagged.append((i, ts[bad], val[bad], fate[bad]))
     vdf = pd.DataFrame(values, index=index, columns=names)
     mdf = pd.DataFrame(valid, index=index, columns=names)
     quality = pd.DataFrame(rows, index=pd.Index(names, name="tag"))
@@ -263,9 +260,7 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
         roles.setdefault((t.role, t.species), []).append(t.tag)
     details = pd.DataFrame([(d.where, d.tag, FATE_NAMES[d.fate], d.message) for d in col.details],
                            columns=["where", "tag", "fate", "message"])
-    flagged_df = (pd.concat(flagged, ignore_index=True) if flagged else
-                  pd.DataFrame({"tag": pd.Series(dtype=str), "timestamp": pd.Series(dtype="datetime64[ns, UTC]"),
-                                "value": pd.Series(dtype=float), "fate": pd.Series(dtype=str)}))
+    flagged_df = _flagged_frame(names, flagged)
     report = dict(report, rows_total=col.rows_total, rows_other_units=col.other_unit,
                   rows_unknown_tags=int(sum(col.unknown.values())), rows_without_tag=col.no_tag,
                   unknown_tags=dict(col.unknown))
@@ -273,6 +268,21 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
                     flagged=flagged_df, details=details, notes=notes, source_report=report, grid=grid)
     check_unit_data(data)
     return data
+
+
+def _flagged_frame(names: list[str], flagged: list) -> pd.DataFrame:
+    """One row per refused reading: tag, UTC time (NaT if unreadable), value [tag unit], fate."""
+    if not flagged:
+        return pd.DataFrame({"tag": pd.Series(dtype=str), "timestamp": pd.Series(dtype="datetime64[ns, UTC]"),
+                             "value": pd.Series(dtype=float), "fate": pd.Series(dtype=str)})
+    tag = np.concatenate([np.full(len(t), i) for i, t, _, _ in flagged])
+    ts = np.concatenate([t for _, t, _, _ in flagged])
+    fate = np.concatenate([f for _, _, _, f in flagged])
+    return pd.DataFrame({
+        "tag": pd.Categorical.from_codes(tag, categories=names).astype(str),
+        "timestamp": pd.DatetimeIndex(ts.view("datetime64[ns]")).tz_localize("UTC"),
+        "value": np.concatenate([v for _, _, v, _ in flagged]),
+        "fate": pd.Categorical.from_codes(fate, categories=[FATE_NAMES[k] for k in range(N_FATES)]).astype(str)})
 
 
 def _refusals(col: Collector, per_tag) -> list[Problem]:

@@ -158,7 +158,10 @@ def flag_frozen(ts: np.ndarray, value: np.ndarray, fate: np.ndarray, frozen_afte
     if g.size < min_readings:
         return fate
     t, v = ts[g], value[g]
-    start = np.r_[True, v[1:] != v[:-1]]
+    eq = v[1:] == v[:-1]
+    if min_readings >= 3 and not (eq[1:] & eq[:-1]).any():
+        return fate                      # no run of three equal values at all
+    start = np.r_[True, ~eq]
     gid = np.cumsum(start) - 1
     first = np.flatnonzero(start)
     last = np.r_[first[1:] - 1, g.size - 1]

@@ -17,10 +17,12 @@ from __future__ import annotations
 
 import io
 import os
+import sqlite3
 from datetime import datetime, timezone
 from pathlib import Path
 
 import pyarrow as pa
+import pyarrow.compute as pc
 import pyarrow.csv as pcsv
 import sqlalchemy as sa
 
@@ -31,6 +33,8 @@ from .timestamps import NAT
 
 #: Stream PostgreSQL (psycopg 3) reads with COPY ... TO STDOUT; False uses the generic streamed SELECT.
 USE_COPY = True
+#: Let SQLite write each chunk as CSV text (group_concat over a rowid range); False uses the generic SELECT.
+USE_SQLITE_BULK = True
 
 
 def source_url(source: Source, base_dir: Path | None = None) -> tuple[sa.URL, str]:
@@ -73,8 +77,18 @@ def _bound(ns: int, source: Source):
     return dt.strftime("%Y-%m-%dT%H:%M:%S")
 
 
-def build_statement(source: Source, tags: list[str], since_ns: int, until_ns: int):
-    """The SELECT for one unit and window, with bound parameters only; returns (statement, params)."""
+#: Labels of the compact columns of a table-mode SELECT (small integers cost the driver least).
+TAG_CODE, QUALITY_BAD = "kt_tag_code", "kt_quality_bad"
+
+
+def build_statement(source: Source, tags: list[str], since_ns: int, until_ns: int, good: list[str] | None = None):
+    """The SELECT for one unit and window, with bound parameters only; returns (statement, params).
+
+    In table mode the tag comes back as its position in ``tags`` (``CASE``), and,
+    when ``good`` is given, the quality as NULL for a good code and the code
+    itself otherwise (``''`` for a missing code), so most rows carry small
+    integers and NULLs instead of strings.
+    """
     c = source.columns
     since, until = _bound(since_ns, source), _bound(until_ns, source)
     if source.query:
@@ -85,7 +99,15 @@ def build_statement(source: Source, tags: list[str], since_ns: int, until_ns: in
     if c.quality:
         cols.append(sa.column(c.quality))
     t = sa.table(table, *cols, schema=schema or None)
-    stmt = sa.select(*[t.c[x.name] for x in cols]).where(t.c[c.tag].in_(tags))
+    out = [t.c[c.timestamp], sa.case({name: i for i, name in enumerate(tags)}, value=t.c[c.tag], else_=-1).label(TAG_CODE),
+           t.c[c.value]]
+    if c.quality:
+        if good:
+            q = t.c[c.quality]
+            out.append(sa.case((q.in_(good), sa.null()), (q.is_(None), ""), else_=q).label(QUALITY_BAD))
+        else:
+            out.append(t.c[c.quality])
+    stmt = sa.select(*out).where(t.c[c.tag].in_(tags))
     if since is not None:
         stmt = stmt.where(t.c[c.timestamp] >= since)
     if until is not None:
@@ -134,20 +156,31 @@ def read_sql_source(source: Source, collector: Collector, tags: list[str], since
     own = engine is None
     if own:
         engine = sa.create_engine(url)
-    stmt, params = build_statement(source, tags, since_ns, until_ns)
+    own_good = any(t.good_quality is not None for t in collector.tags)
+    good = None if own_good else list(source.good_quality)
+    stmt, params = build_statement(source, tags, since_ns, until_ns, good)
     counts = {"rows": 0, "chunks": 0}
     dbapi_error = getattr(getattr(engine.dialect, "dbapi", None), "Error", sa.exc.SQLAlchemyError)
     try:
         with engine.connect() as conn:
             if USE_COPY and conn.dialect.name == "postgresql" and conn.dialect.driver == "psycopg":
-                _copy_postgres(conn, stmt, params, collector, counts)
+                _copy_postgres(conn, stmt, params, collector, counts, tags, good)
+            elif USE_SQLITE_BULK and conn.dialect.name == "sqlite" and not source.query and \
+                    _sqlite_bulk(conn, source, tags, good, since_ns, until_ns, collector, counts):
+                pass
             else:
-                res = conn.execution_options(stream_results=True, max_row_buffer=source.chunk_rows).execute(stmt, params)
-                names = list(res.keys())
-                for part in res.partitions(source.chunk_rows):
-                    _add_rows(collector, names, part, source)
-                    counts["rows"] += len(part)
-                    counts["chunks"] += 1
+                cur = _raw_execute(conn, stmt, params)   # DBAPI cursor: plain tuples, no Row objects
+                try:
+                    names = [d[0] for d in cur.description]
+                    while True:
+                        part = cur.fetchmany(source.chunk_rows)
+                        if not part:
+                            break
+                        _add_rows(collector, names, part, source, tags, good)
+                        counts["rows"] += len(part)
+                        counts["chunks"] += 1
+                finally:
+                    cur.close()
     except (sa.exc.SQLAlchemyError, dbapi_error) as exc:
         raise IngestError(name, [Problem(f"table {source.table!r}" if not source.query else "source.query",
                                          f"cannot read readings: {_explain(exc, url)}")]) from None
@@ -157,29 +190,161 @@ def read_sql_source(source: Source, collector: Collector, tags: list[str], since
     return counts
 
 
-def _add_rows(collector: Collector, names: list[str], part, source: Source) -> None:
-    c = source.columns
-    cols = list(zip(*part))
-    by = dict(zip(names, cols))
+def _raw_execute(conn, stmt, params: dict):
+    """Execute a compiled statement on the DBAPI connection; a server-side cursor where the driver has one."""
+    compiled = stmt.compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
+    values = compiled.construct_params(params or None)
+    if conn.dialect.positional:
+        args = tuple(values[k] for k in compiled.positiontup)
+    else:
+        args = values
+    raw = conn.connection.driver_connection
+    if conn.dialect.name == "postgresql":
+        cur = raw.cursor(name="kinetrace_stream")    # psycopg server-side cursor: bounded memory
+    else:
+        cur = raw.cursor()                            # sqlite3 steps through rows lazily
+    cur.execute(str(compiled), args)
+    return cur
 
-    def arr(key):
+
+def _sql_csv_text(expr: str) -> str:
+    """SQLite expression: a text column as one CSV field (quoted, quotes doubled; NULL -> empty)."""
+    return f"""CASE WHEN {expr} IS NULL THEN '' ELSE '"' || replace({expr}, '"', '""') || '"' END"""
+
+
+def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, until_ns: int,
+                 collector: Collector, counts: dict) -> bool:
+    """SQLite bulk path: each rowid range comes back as one CSV text (group_concat) parsed by pyarrow.
+
+    Values go through ``printf('%.17g')``, which round-trips a double exactly. Returns False
+    (caller uses the generic path) if the table has no rowid.
+    """
+    c = source.columns
+    raw = conn.connection.driver_connection
+    q = lambda name: '"' + name.replace('"', '""') + '"'   # noqa: E731  (SQL identifier quoting)
+    schema, _, table = source.table.rpartition(".")
+    tbl = (q(schema) + "." if schema else "") + q(table)
+    ts, tg, val = q(c.timestamp), q(c.tag), q(c.value)
+    marks = ",".join("?" * len(tags))
+    where, args = [f"{tg} IN ({marks})"], list(tags)
+    since, until = _bound(since_ns, source), _bound(until_ns, source)
+    if since is not None:
+        where.append(f"{ts} >= ?")
+        args.append(since)
+    if until is not None:
+        where.append(f"{ts} < ?")
+        args.append(until)
+    cond = " AND ".join(where)
+    # SQLite reads an unknown "double-quoted" name as a string literal: check the columns first
+    err = sqlite3.OperationalError
+    have = {r[1] for r in raw.execute(f"PRAGMA {q(schema) + '.' if schema else ''}table_info({q(table)})")}
+    if not have:
+        raise err(f"no such table: {source.table}")
+    for name in [c.timestamp, c.tag, c.value] + ([c.quality] if c.quality else []):
+        if name not in have:
+            raise err(f"no such column: {table}.{name}")
+    try:
+        lo, hi = raw.execute(f"SELECT min(rowid), max(rowid) FROM {tbl} WHERE {cond}", args).fetchone()
+    except Exception as exc:  # noqa: BLE001 - e.g. a WITHOUT ROWID table or a view: use the generic path
+        if "rowid" in str(exc):
+            return False
+        raise
+    counts.setdefault("rows", 0)
+    if lo is None:
+        return True
+    code = "CASE " + tg + " " + " ".join(f"WHEN ? THEN {i}" for i in range(len(tags))) + " ELSE -1 END"
+    value = (f"CASE WHEN typeof({val}) IN ('integer', 'real') THEN printf('%.17g', {val}) "
+             f"ELSE {_sql_csv_text(val)} END")
+    fields = [_sql_csv_text(ts), code, value]
+    names = [c.timestamp, TAG_CODE, c.value]
+    code_args = list(tags)
+    qual_args: list = []
+    if c.quality:
+        qq = q(c.quality)
+        if good:
+            fields.append(f"""CASE WHEN {qq} IN ({",".join("?" * len(good))}) THEN '' WHEN {qq} IS NULL THEN '""' """
+                          f"ELSE {_sql_csv_text(qq)} END")
+            qual_args = list(good)
+            names.append(QUALITY_BAD)
+        else:
+            fields.append(_sql_csv_text(qq))
+            names.append(c.quality)
+    line = " || ',' || ".join(fields)
+    sql = (f"SELECT group_concat(line, char(10)), count(*) FROM (SELECT {line} AS line FROM {tbl} "
+           f"WHERE rowid >= ? AND rowid < ? AND {cond})")
+    types = {n: pa.string() for n in names}
+    types[TAG_CODE] = pa.int32()
+    fast = dict(types, **{c.value: pa.float64(), c.timestamp: pa.dictionary(pa.int32(), pa.string())})
+    step = source.chunk_rows
+    for a in range(lo, hi + 1, step):
+        text, n = raw.execute(sql, code_args + qual_args + [a, a + step] + args).fetchone()
+        if not n:
+            continue
+        buf = pa.py_buffer(text.encode("utf-8"))
+        opts = dict(strings_can_be_null=True, null_values=[""], quoted_strings_can_be_null=False)
+        ro = pcsv.ReadOptions(column_names=names, use_threads=True, block_size=1 << 20)
+        try:
+            tab = pcsv.read_csv(buf, read_options=ro, convert_options=pcsv.ConvertOptions(column_types=fast, **opts))
+        except pa.ArrowInvalid:
+            tab = pcsv.read_csv(buf, read_options=ro, convert_options=pcsv.ConvertOptions(column_types=types, **opts))
+        tab = tab.unify_dictionaries()
+        by = {h: tab.column(h).combine_chunks() for h in names}
+        collector.add(*_columns(collector, by, source, tags, good))
+        counts["rows"] += int(n)
+        counts["chunks"] += 1
+    return True
+
+
+def _str_array(values) -> pa.Array:
+    try:
+        return pa.array(values, type=pa.string())
+    except (pa.ArrowInvalid, pa.ArrowTypeError):
+        return pa.array([None if v is None else str(v) for v in values], type=pa.string())
+
+
+def _columns(collector: Collector, by: dict, source: Source, tags: list[str], good: list[str] | None):
+    """(tag, time, value, quality) arrays for the collector from result columns keyed by name."""
+    c = source.columns
+
+    def col(key):
         if key not in by:
-            raise IngestError("query result", [Problem("columns", f"result has no column {key!r}; it has {names!r}")])
+            raise IngestError("query result", [Problem("columns", f"result has no column {key!r}; it has {list(by)!r}")])
         return by[key]
 
-    ts_list = arr(c.timestamp)
-    if ts_list and isinstance(next((v for v in ts_list if v is not None), ""), datetime):
+    if TAG_CODE in by:
+        codes = pa.array(by[TAG_CODE], type=pa.int32()) if not isinstance(by[TAG_CODE], pa.Array) \
+            else pc.cast(by[TAG_CODE], pa.int32())
+        codes = pc.if_else(pc.less(codes, 0), pa.scalar(None, pa.int32()), codes)
+        tag = pa.DictionaryArray.from_arrays(codes, pa.array(tags, type=pa.string()))
+    else:
+        tag = by[c.tag] if isinstance(by[c.tag], pa.Array) else _str_array(col(c.tag))
+    ts_list = col(c.timestamp)
+    if isinstance(ts_list, pa.Array):
+        ts = ts_list
+    elif ts_list and isinstance(next((v for v in ts_list if v is not None), ""), datetime):
         ts = pa.array([_utc(v) for v in ts_list], type=pa.timestamp("us", tz="UTC"))
     else:
-        ts = pa.array([None if v is None else str(v) for v in ts_list], type=pa.string())
-    values = arr(c.value)
-    try:
-        val = pa.array(values, type=pa.float64())
-    except (pa.ArrowInvalid, pa.ArrowTypeError):
-        val = pa.array([None if v is None else str(v) for v in values], type=pa.string())
-    tag = pa.array([None if v is None else str(v) for v in arr(c.tag)], type=pa.string())
-    q = pa.array([None if v is None else str(v) for v in by[c.quality]], type=pa.string()) if c.quality in by else None
-    collector.add(tag, ts, val, q)
+        ts = _str_array(ts_list)
+    values = col(c.value)
+    if isinstance(values, pa.Array):
+        val = values
+    else:
+        try:
+            val = pa.array(values, type=pa.float64())
+        except (pa.ArrowInvalid, pa.ArrowTypeError):
+            val = _str_array(values)
+    q = None
+    if QUALITY_BAD in by:
+        raw = by[QUALITY_BAD] if isinstance(by[QUALITY_BAD], pa.Array) else _str_array(by[QUALITY_BAD])
+        q = pc.fill_null(raw, good[0])
+    elif c.quality and c.quality in by:
+        q = by[c.quality] if isinstance(by[c.quality], pa.Array) else _str_array(by[c.quality])
+    return tag, ts, val, q
+
+
+def _add_rows(collector: Collector, names: list[str], part, source: Source, tags, good) -> None:
+    by = dict(zip(names, zip(*part)))
+    collector.add(*_columns(collector, by, source, tags, good))
 
 
 def _utc(v):
@@ -188,7 +353,8 @@ def _utc(v):
     return v.replace(tzinfo=timezone.utc) if v.tzinfo is None else v.astimezone(timezone.utc)
 
 
-def _copy_postgres(conn, stmt, params, collector: Collector, counts: dict, block_bytes: int = 8 << 20) -> None:
+def _copy_postgres(conn, stmt, params, collector: Collector, counts: dict, tags, good,
+                   block_bytes: int = 8 << 20) -> None:
     """Stream a SELECT through COPY ... TO STDOUT (CSV), parsed in blocks by pyarrow."""
     compiled = stmt.compile(dialect=conn.dialect, compile_kwargs={"literal_binds": True}) \
         if not params else None
@@ -213,26 +379,27 @@ def _copy_postgres(conn, stmt, params, collector: Collector, counts: dict, block
             for data in cp:
                 buf += data
                 if len(buf) >= block_bytes:
-                    header = _flush_copy(buf, header, collector, counts)
+                    header = _flush_copy(buf, header, collector, counts, tags, good)
                     buf = bytearray()
         if buf:
-            _flush_copy(buf, header, collector, counts)
+            _flush_copy(buf, header, collector, counts, tags, good)
 
 
-def _flush_copy(buf: bytearray, header, collector: Collector, counts: dict):
+def _flush_copy(buf: bytearray, header, collector: Collector, counts: dict, tags, good):
     data = bytes(buf)
     if header is None:
         first, _, data = data.partition(b"\n")
         header = first.decode().split(",")
     if not data:
         return header
+    types = {h: pa.string() for h in header}
+    if TAG_CODE in types:
+        types[TAG_CODE] = pa.int32()
     table = pcsv.read_csv(io.BytesIO(data), read_options=pcsv.ReadOptions(column_names=header),
-                          convert_options=pcsv.ConvertOptions(column_types={h: pa.string() for h in header},
-                                                              strings_can_be_null=True, null_values=[""]))
-    c = collector.source.columns
-    collector.add(table.column(c.tag).combine_chunks(), table.column(c.timestamp).combine_chunks(),
-                  table.column(c.value).combine_chunks(),
-                  table.column(c.quality).combine_chunks() if c.quality and c.quality in header else None)
+                          convert_options=pcsv.ConvertOptions(column_types=types, strings_can_be_null=True,
+                                                              null_values=[""], quoted_strings_can_be_null=False))
+    by = {h: table.column(h).combine_chunks() for h in header}
+    collector.add(*_columns(collector, by, collector.source, tags, good))
     counts["rows"] += table.num_rows
     counts["chunks"] += 1
     return header
