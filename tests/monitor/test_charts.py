@@ -154,3 +154,25 @@ def test_robust_sigma_ignores_a_step():
     x = rng.normal(0.0, 0.5, 5000)
     x[2500:] += 10.0
     assert robust_sigma(x) == pytest.approx(0.5, rel=0.05)
+
+
+def test_ar1_innovations_restore_the_in_control_run_length():
+    # Alwan & Roberts (1988), Montgomery (2009) sec. 10.4 [memory]: charting the residuals of a fitted
+    # AR(1) restores the false-alarm rate of independent data; raw autocorrelated data alarm far more often
+    from kinetrace.monitor.charts import ar1_innovations
+    from scipy import signal
+
+    rng = np.random.default_rng(21)
+    n_series, n = 30, 3000
+    idx = pd.date_range("2026-01-01", periods=n, freq="h", tz="UTC")
+    raw_alarms = inn_alarms = 0
+    for _ in range(n_series):
+        x = signal.lfilter([1.0], [1.0, -0.8], rng.normal(size=n)) * np.sqrt(1 - 0.8**2)  # unit variance
+        s = pd.Series(x, index=idx)
+        raw_alarms += len(cusum_alarms(s, mean=0.0, sigma=1.0, arl0=370.0).alarms)
+        inn, phi = ar1_innovations(s)
+        assert phi == pytest.approx(0.8, abs=0.05)
+        inn_alarms += len(cusum_alarms(inn.dropna(), mean=0.0, sigma=1.0, arl0=370.0).alarms)
+    expected = n_series * n / 370.0  # about 243 alarms in 90 000 observations
+    assert 0.6 * expected < inn_alarms < 1.5 * expected
+    assert raw_alarms > 3 * expected

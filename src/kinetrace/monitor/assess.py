@@ -7,7 +7,8 @@ index):
 
 1. activity trend of the current catalyst charge (:func:`~kinetrace.monitor.trend.fit_activity_trend`);
 2. steps in activity (poisoning drops, catalyst changes) and EWMA and CUSUM
-   charts on the standardised residuals of the trend;
+   charts on the AR(1) innovations of the standardised trend residuals
+   (Alwan & Roberts 1988: hourly plant residuals are autocorrelated);
 3. daily production against target with the exact gap attribution;
 4. activity needed at the present operating point and the forecast of the miss date;
 5. what-if settings inside the configured safe limits.
@@ -31,7 +32,7 @@ from kinetrace.config.model import UnitModel
 from kinetrace.errors import KinetraceError
 from kinetrace.monitor._unit import unit_reactions
 from kinetrace.monitor.alarms import Alarm
-from kinetrace.monitor.charts import ChartResult, cusum_alarms, ewma_alarms
+from kinetrace.monitor.charts import ChartResult, ar1_innovations, cusum_alarms, ewma_alarms
 from kinetrace.monitor.forecast import Forecast, forecast_crossing, required_activity
 from kinetrace.monitor.production import CAUSES, attribute_shortfall
 from kinetrace.monitor.steps import detect_steps
@@ -141,6 +142,7 @@ def assess_unit(
     valid: pd.Series | None = None,
     volume_limits: tuple[float, float] | None = None,
     arl0: float = 370.0,
+    min_step: float = 0.05,
     tz: str = "UTC",
     day_start: str = "00:00",
     horizon_days: float = 365.0,
@@ -170,7 +172,10 @@ def assess_unit(
     volume_limits : tuple, optional
         Safe hold-up range [m^3] for the residence-time what-if.
     arl0 : float
-        In-control average run length of the residual charts. [observations]
+        In-control average run length of the residual charts (EWMA and CUSUM on the
+        AR(1) innovations of the trend residuals). [observations]
+    min_step : float
+        Smallest sudden change of activity reported as a step. [-]
     tz, day_start : str
         Site time zone and start of the production day.
     horizon_days : float
@@ -205,12 +210,19 @@ def assess_unit(
             trend = fit_activity_trend(act, events=events)
         except KinetraceError as exc:
             problems.append(f"activity trend: {exc}")
-        alarms += detect_steps(act.dropna(), name="activity") if act.notna().sum() >= 12 else []
-        if trend is not None and trend.residuals.notna().sum() >= 10:
-            for func in (cusum_alarms, ewma_alarms):
-                res = func(trend.residuals.dropna(), mean=0.0, sigma=1.0, arl0=arl0, name="activity residual")
-                charts.append(res)
-                alarms += res.alarms
+        if act.notna().sum() >= 12:
+            alarms += detect_steps(act.dropna(), name="activity", min_size=min_step)
+        if trend is not None and trend.residuals.notna().sum() >= 20:
+            # hourly residuals are autocorrelated (feed wander, slow analyser drift): chart the AR(1)
+            # innovations so that the in-control run length is the one the limits were set for
+            try:
+                inn, _ = ar1_innovations(trend.residuals.reindex(series.index))
+                for func in (cusum_alarms, ewma_alarms):
+                    res = func(inn.dropna(), mean=0.0, sigma=1.0, arl0=arl0, name="activity residual")
+                    charts.append(res)
+                    alarms += res.alarms
+            except KinetraceError as exc:
+                problems.append(f"residual charts: {exc}")
     else:
         problems.append("activity trend: no activity column or fewer than 10 values")
     alarms.sort(key=lambda a: a.detected)
