@@ -17,6 +17,7 @@ import pandas as pd
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError
 from .backcalc import back_calculate
+from .reconciliation import reconcile_unit
 from .roles import role_frame
 
 log = logging.getLogger("kinetrace")
@@ -31,6 +32,7 @@ class UnitResult:
     roles: pd.DataFrame            # combined measurements (SI)
     quality: pd.DataFrame          # per-tag data-quality summary
     summary: dict = field(default_factory=dict)
+    faults: list = field(default_factory=list)     # SensorFault records from reconciliation
 
 
 def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, until=None) -> UnitResult:
@@ -39,11 +41,24 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
 
     data = read_unit(cfg, model, config_path=config_path, since=since, until=until)
     roles = role_frame(data.values, data.valid, data.volume, model)
-    series = back_calculate(roles, model)
-    return UnitResult(model, series, roles, data.quality, summarise(series, model))
+    measured = back_calculate(roles, model)
+    rec = reconcile_unit(roles, model, steady=measured["steady"])
+    series = back_calculate(rec.roles, model, steady=measured["steady"])
+    attrs = dict(series.attrs)
+    series = series.join(measured[[c for c in MEASURED_COLUMNS if c in measured]
+                                  + [c for c in measured if c.startswith("k_ref:")]].add_suffix("_measured"))
+    series = series.join(rec.frame)
+    series.attrs.update(attrs)
+    result = UnitResult(model, series, roles, data.quality, {}, faults=rec.faults)
+    result.summary = summarise(series, model, faults=rec.faults)
+    return result
 
 
-def summarise(series: pd.DataFrame, model: UnitModel, *, window: str = "24h") -> dict:
+#: Back-calculated columns also kept from the raw (unreconciled) measurements, as ``<name>_measured``.
+MEASURED_COLUMNS = ("conversion", "key_rate", "activity", "production", "production_mass")
+
+
+def summarise(series: pd.DataFrame, model: UnitModel, *, window: str = "24h", faults=()) -> dict:
     """Summary of the last ``window`` of a unit's series (production vs target, conversion, k_ref, activity).
 
     Production is the mean over the window of every hour with data (hours down count as
@@ -70,6 +85,9 @@ def summarise(series: pd.DataFrame, model: UnitModel, *, window: str = "24h") ->
         "activity": float(basis["activity"].mean()) if len(basis) and "activity" in basis else float("nan"),
         "steady_hours": int(len(steady)),
         "fresh_basis": series.attrs.get("fresh_basis", {}).get(main, ""),
+        "closure_volume_pct": float(100 * last["closure:volume"].abs().median()) if "closure:volume" in last else float("nan"),
+        "global_test_alarm_hours": int(last["global_test_alarm"].sum()) if "global_test_alarm" in last else 0,
+        "sensor_faults": "; ".join(f.evidence() for f in faults if f.end >= last.index[0]),
     }
     out["production_ratio"] = out["production_kg_h"] / out["target_kg_h"]
     out["status"] = ("no data" if not np.isfinite(out["production_ratio"])
@@ -127,6 +145,13 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
                 run.write_parameters(uid, pd.DataFrame([
                     {"name": f"k_ref_fresh:{rid}", "value": v, "unit_of_measure": "SI",
                      "method": basis.get(rid, "")} for rid, v in fresh.items()]))
+            if res.faults:
+                run.write_alarms(uid, pd.DataFrame([{
+                    "kind": "balance_mismatch" if f.ambiguous else "sensor_bias", "variable": ", ".join(f.tags) or f.role, "onset": f.onset,
+                    "detected": f.alarm, "magnitude": 100 * f.relative, "magnitude_unit": "%",
+                    "evidence": f.evidence(), "state": "open" if f.end >= res.series.index[-1] - pd.Timedelta("2h") else "closed",
+                    "closed": None if f.end >= res.series.index[-1] - pd.Timedelta("2h") else f.end}
+                    for f in res.faults]))
             run.set_watermark(uid, res.series.index[-1])
         return run.run_id
 

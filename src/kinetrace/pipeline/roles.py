@@ -8,6 +8,9 @@ combination of independent measurements (Taylor, J. R. 1997, An Introduction to
 Error Analysis, 2nd ed., Sec. 7.2), whose standard deviation comes with it.
 Laboratory tags fill the time steps where no online value is valid: a lab result
 is carried forward for hours, so beside a live analyzer it is the staler value.
+A lab result carried over n intervals is one observation, not n: its standard
+deviation is multiplied by sqrt(n) in each of them, so that, summed over the
+intervals, it weighs in the balances as one sample does.
 (Reconciliation, downstream, weighs all of them against the balances.)
 
 Role columns of the frame returned by :func:`role_frame` (all SI):
@@ -56,6 +59,22 @@ def _tag_sigma_array(tag, values: np.ndarray) -> np.ndarray:
     return np.where(sig > 0, sig, np.maximum(0.01 * np.abs(values), 1e-12)) if tag.sigma is None else sig
 
 
+def _run_lengths(v: np.ndarray) -> np.ndarray:
+    """Length of the run of identical consecutive values each element belongs to (NaN: 1).
+
+    >>> _run_lengths(np.array([1.0, 1.0, 1.0, 2.0, np.nan, 3.0, 3.0])).tolist()
+    [3, 3, 3, 1, 1, 2, 2]
+    """
+    n = len(v)
+    if n == 0:
+        return np.ones(0, dtype=int)
+    change = np.ones(n, dtype=bool)
+    change[1:] = ~((v[1:] == v[:-1]) & np.isfinite(v[1:]))
+    starts = np.flatnonzero(change)
+    lengths = np.diff(np.append(starts, n))
+    return np.repeat(lengths, lengths)
+
+
 def _combine(tags, values: pd.DataFrame, valid: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
     """Inverse-variance weighted mean of the valid readings of several tags, and its sigma."""
     num = np.zeros(len(values))
@@ -64,6 +83,8 @@ def _combine(tags, values: pd.DataFrame, valid: pd.DataFrame) -> tuple[np.ndarra
         v = values[tag.tag].to_numpy(dtype=float)
         ok = valid[tag.tag].to_numpy(dtype=bool) & np.isfinite(v)
         s = _tag_sigma_array(tag, v)
+        if tag.sampling == "lab":
+            s = s * np.sqrt(_run_lengths(v))
         w = np.where(ok, 1.0 / np.where(ok, s, 1.0) ** 2, 0.0)
         num += np.where(ok, w * np.nan_to_num(v), 0.0)
         den += w
@@ -120,8 +141,9 @@ def role_frame(values: pd.DataFrame, valid: pd.DataFrame, volume: pd.Series, mod
         use_nominal = ~np.isfinite(measured)
         out[col] = np.where(use_nominal, nominal, measured)
         # the nominal feed composition is a specification, not a measurement: 2 % of value
-        # (common practice, no source) or 1 mol/m3 for a species specified absent
-        sig_nom = max(0.02 * abs(nominal), 1.0)
+        # (common practice, no source)
+        # (a species specified absent from the feed is known exactly: sigma 0)
+        sig_nom = 0.02 * abs(nominal)
         out[f"sigma:{col}"] = np.where(use_nominal, sig_nom, out.get(f"sigma:{col}", np.full(len(values), sig_nom)))
         out[f"nominal:{col}"] = use_nominal
     return pd.DataFrame(out, index=values.index)
