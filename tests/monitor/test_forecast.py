@@ -7,6 +7,7 @@ import pandas as pd
 import pytest
 from scipy import optimize
 
+from kinetrace.errors import KinetraceError
 from kinetrace.monitor.decay import decay_activity
 from kinetrace.monitor.forecast import forecast_crossing, required_activity
 from kinetrace.monitor.trend import fit_activity_trend
@@ -116,6 +117,8 @@ def test_forecast_states_other_cases_plainly():
     assert below.status == "below_now" and "already below" in below.text
     far = forecast_crossing(trend, 0.01, unit="R-210", horizon_days=30)
     assert far.status == "beyond_horizon" and far.central is None and "until at least" in far.text
+    with pytest.raises(KinetraceError, match="activity needed is not known"):
+        forecast_crossing(trend, float("nan"), unit="R-210")
     none = forecast_crossing(trend, np.inf, unit="R-210")
     assert none.status == "unreachable" and "No catalyst activity" in none.text
     flat = pd.Series(0.9 + np.random.default_rng(0).normal(0, 0.005, 500),

@@ -144,3 +144,17 @@ def test_period_labels_in_site_time_zone():
         period_labels(t, day_start=6)
     with pytest.raises(KinetraceError, match="'day' or 'shift'"):
         period_labels(t, period="week")
+
+
+def test_daylight_saving_days_keep_every_hour():
+    # Europe/London, end of summer time 25 Oct 2026 (clock 02:00 BST -> 01:00 GMT): a production day starting
+    # at the twice-occurring 01:30 has 25 hours; the start of summer time (29 Mar 2026) gives a 23-hour day;
+    # no row is dropped (common practice, no source)
+    for day, hours, start in (("2026-10-25", 25, "01:30"), ("2026-03-29", 23, "00:00")):
+        idx = pd.date_range(pd.Timestamp(day, tz="Europe/London").tz_convert("UTC") - pd.Timedelta("1D"),
+                            periods=24 * 3, freq="h")
+        p = pd.Series(1.0, index=idx)
+        tot = production_totals(p, 1.0, tz="Europe/London", day_start=start)
+        assert tot["produced"].sum() == 3 * 24 * HOUR
+        mid = tot.loc[tot.index.normalize() == pd.Timestamp(day, tz="Europe/London")]
+        assert mid["hours"].iloc[0] == hours

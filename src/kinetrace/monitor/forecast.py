@@ -192,6 +192,9 @@ def forecast_crossing(
     """
     if not 0 < level < 1:
         raise KinetraceError(f"level must be between 0 and 1, got {level!r}")
+    if required is None or np.isnan(required):
+        raise KinetraceError(f"unit {unit}: the activity needed is not known ({required!r}); check the operating "
+                             "point (feed flow, temperature, volume) it was computed from")
     now = trend.last_observation if now is None else utc_timestamp(now, "now")
     grid = pd.date_range(now, now + pd.Timedelta(days=float(horizon_days)), freq="h")
     pred = trend.predict(grid, level=level, band=band)

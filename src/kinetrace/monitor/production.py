@@ -125,7 +125,10 @@ def period_labels(
     start = day + offs[pos]
     nxt = np.where(pos + 1 < len(offs), pos + 1, 0)
     end = day + offs[nxt] + pd.to_timedelta(np.where(pos + 1 < len(offs), 0, 1), unit="D")
-    loc = lambda x: pd.DatetimeIndex(x).tz_localize(tz, ambiguous="NaT", nonexistent="shift_forward")  # noqa: E731
+    # a clock time that occurs twice (end of summer time) is read as the first (summer-time) one, one that
+    # does not occur is moved forward: never NaT, so no row loses its period
+    loc = lambda x: pd.DatetimeIndex(x).tz_localize(tz, ambiguous=np.ones(len(x), bool),  # noqa: E731
+                                                      nonexistent="shift_forward")
     return loc(start), loc(end)
 
 
