@@ -39,6 +39,8 @@ from .conversion import _linear
 
 #: Bytes read per block (whole lines are completed after it).
 BLOCK_BYTES = 8 << 20
+#: Parsed blocks live briefly; the system allocator returns their memory at once.
+_POOL = pa.system_memory_pool()
 
 
 def list_files(path: Path, pattern: str) -> list[Path]:
@@ -175,7 +177,8 @@ def parse_block(buf: bytes, header: list[str], source: Source, layout: str, name
             pa.py_buffer(buf),
             read_options=pcsv.ReadOptions(column_names=header, use_threads=True, block_size=1 << 20),
             parse_options=pcsv.ParseOptions(delimiter=source.delimiter, ignore_empty_lines=False),
-            convert_options=pcsv.ConvertOptions(column_types=_fast_types(header, source, layout), **common))
+            convert_options=pcsv.ConvertOptions(column_types=_fast_types(header, source, layout), **common),
+            memory_pool=_POOL)
         # no line was rejected (else pyarrow raised): every line is a row, a blank line a row of nulls
         return table.unify_dictionaries(), [], table.num_rows
     except (pa.ArrowInvalid, pa.ArrowNotImplementedError):

@@ -181,14 +181,14 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
         fate = screening.screen(ts, val, fate, valid_range=t.valid_range, max_rate=t.max_rate, frozen_after=frozen)
         per_tag.append((ts, val, fate, late))
     # grid
-    good_times = [ts[(f == GOOD)] for ts, _, f, _ in per_tag]
+    good_span = [_good_span(ts, f) for ts, _, f, _ in per_tag]   # (first, last) good time of each tag [ns]
     if since_ns != NAT:
         first = since_ns
     else:
-        cand = [g[0] for g in good_times if g.size]
+        cand = [g[0] for g in good_span if g]
         first = min(cand) if cand else NAT
     if until_ns == NAT and complete_only:
-        cand = [g[-1] for g in good_times if g.size]
+        cand = [g[1] for g in good_span if g]
         if cand:   # end at the start of the interval holding the latest reading: it is still filling
             step = int(round(grid * 1e9))
             until_ns = (max(cand) - shift_max) // step * step
@@ -197,7 +197,7 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     if until_ns != NAT:
         last = until_ns - 1
     else:
-        cand = [g[-1] for g in good_times if g.size]
+        cand = [g[1] for g in good_span if g]
         last = max(cand) if cand else NAT
     required = _required(u, model)
     counts = [ts.size for ts, _, _, _ in per_tag]
@@ -217,8 +217,8 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
         edges = edges[edges <= until_ns]
     index = pd.DatetimeIndex(pd.to_datetime(edges[:-1], utc=True), name="timestamp")
     nb = len(index)
-    values = np.full((nb, len(names)), np.nan)
-    valid = np.zeros((nb, len(names)), bool)
+    values: dict[str, np.ndarray] = {}     # filled tag by tag while the tag's readings are freed
+    valid: dict[str, np.ndarray] = {}
     rows = []
     flagged = []
     for i, t in enumerate(u.tags):
@@ -233,20 +233,23 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
             v, carried = align.sample_mean_carry(tg, xg, edges, t.max_age)
         taint_mask = np.isin(fate, TAINTING)
         tainted = align.count_per_interval(ts[taint_mask] - shift, edges) > 0
-        values[:, i] = v
-        valid[:, i] = ~np.isnan(v) & ~tainted
+        values[t.tag] = v
+        valid[t.tag] = ok = ~np.isnan(v) & ~tainted
+        per_tag[i] = None
         fc = np.bincount(fate, minlength=N_FATES)
         row = {"rows_read": int(ts.size)}
         row.update({FATE_NAMES[k]: int(fc[k]) for k in range(N_FATES)})
         row.update(outside_window=int(col.outside[i]), out_of_order=int(late), intervals=nb,
                    missing_intervals=int(np.isnan(v).sum()), carried_intervals=int(carried.sum()),
-                   flagged_intervals=int((tainted & ~np.isnan(v)).sum()), valid_intervals=int(valid[:, i].sum()))
+                   flagged_intervals=int((tainted & ~np.isnan(v)).sum()), valid_intervals=int(ok.sum()))
         rows.append(row)
         bad = ~g
         if bad.any():
             flagged.append((i, ts[bad], val[bad], fate[bad]))
     vdf = pd.DataFrame(values, index=index, columns=names)
+    values.clear()
     mdf = pd.DataFrame(valid, index=index, columns=names)
+    valid.clear()
     quality = pd.DataFrame(rows, index=pd.Index(names, name="tag"))
     notes = [Problem(w, m) for w, m in col.notes]
     for i, t in enumerate(u.tags):
@@ -268,6 +271,12 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
                     flagged=flagged_df, details=details, notes=notes, source_report=report, grid=grid)
     check_unit_data(data)
     return data
+
+
+def _good_span(ts: np.ndarray, fate: np.ndarray):
+    """First and last time of the good readings of sorted arrays, or None. [ns]"""
+    good = np.flatnonzero(fate == GOOD)
+    return (int(ts[good[0]]), int(ts[good[-1]])) if good.size else None
 
 
 def _flagged_frame(names: list[str], flagged: list) -> pd.DataFrame:
