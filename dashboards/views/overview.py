@@ -30,8 +30,8 @@ for i, unit in enumerate(units):
             prod, target = d["production_kg"].sum() / n_days / 1000.0, d["target_kg"].sum() / n_days / 1000.0
             ratio = 100.0 * prod / target if target > 0 else np.nan
             st.metric(f"{unit} produced, mean of {period} [t/d]", fmt(prod, ".2f"),
-                      delta=f"{fmt(ratio, '.1f')} % of target" if np.isfinite(ratio) else None,
-                      delta_color="normal" if ratio >= 100 else "inverse")
+                      delta=f"{ratio - 100:+.1f} % against target" if np.isfinite(ratio) else None,
+                      delta_color="normal")
             st.caption(f"target {fmt(target, '.2f', 't/d')}; days {d['day'].iloc[0]} to {d['day'].iloc[-1]}")
         else:
             ui.not_available("Production against target", "no daily production rows")
@@ -66,8 +66,10 @@ for i, unit in enumerate(units):
         else:
             share = np.nan
         c1, c2 = st.columns(2)
+        if len(q):
+            c2.caption(f"period from {latest['period_start'].iloc[0]:%Y-%m-%d %H:%M} UTC")
         c1.metric(f"{unit} open alarms", str(n_open))
-        c2.metric(f"{unit} good readings, last period [%]", fmt(share, ".1f"))
+        c2.metric(f"{unit} good readings [%]", fmt(share, ".1f"))
 
 runs = cached.runs(url)
 if len(runs):

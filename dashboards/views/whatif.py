@@ -41,7 +41,7 @@ pts = alt.Chart(marks).mark_tick(thickness=3, size=30).encode(
     x="value:Q", color=alt.Color("what:N", title=None, scale=alt.Scale(domain=["current", "proposed"],
                                                                       range=[ui.COLOURS["target"], ui.COLOURS["fit"]])),
     tooltip=["what:N", alt.Tooltip("value:Q", format=".4g")])
-st.altair_chart((rng + pts).properties(height=70), key="ch_wi")
+st.altair_chart((rng + pts).properties(height=90), key="ch_wi")
 st.caption("Green: the configured safe operating range of the lever.")
 table = pd.DataFrame({
     "lever": w["lever"],

@@ -67,19 +67,79 @@ def _run(config: Path, since, until, out) -> tuple[list, Path]:
                      progress=lambda u, i, n: log.info("checking unit %s (%d of %d)", u, i + 1, n))
 
 
+#: Exit codes of ``kinetrace check`` (for cron or any scheduler).
+EXIT_OK, EXIT_ATTENTION, EXIT_ERROR = 0, 1, 2
+
+
+def _open_store(config: Path):
+    from .config import load_config, store_url
+    from .store import open_store
+
+    cfg = load_config(config)
+    return cfg, open_store(store_url(cfg, config))
+
+
+def _write_report(config: Path, day=None, out: Path | None = None):
+    from .config import resolve_path
+    from .report import build_report
+
+    cfg, store = _open_store(config)
+    try:
+        folder = Path(out) if out else resolve_path(config, cfg.analysis.output_dir) / "reports"
+        return build_report(store, folder.resolve(), day, tz=cfg.site.timezone, site=cfg.site.name)
+    finally:
+        store.close()
+
+
+def _attention(config: Path) -> list[str]:
+    from .report import alert_reasons
+
+    cfg, store = _open_store(config)
+    try:
+        return alert_reasons(store, tz=cfg.site.timezone)
+    finally:
+        store.close()
+
+
 @app.command()
 def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configuration TOML file."),
           since: str = typer.Option(None, help="Start of the period (ISO 8601; UTC unless an offset is given)."),
           until: str = typer.Option(None, help="End of the period (exclusive)."),
           out: Path = typer.Option(None, help="Output folder (default: analysis.output_dir of the config).")):
-    """Back-calculate conversion, k_ref, activity and production for every unit of a plant."""
+    """Back-calculate, reconcile and assess every unit; exit 1 when a unit needs attention.
+
+    Exit status: 0 every unit on target and no open alarm; 1 a unit below target, without
+    data, or with an open alarm (the reasons are printed); 2 the check could not run.
+    Safe to run from cron every hour: each run replaces the results of its window.
+    """
     _setup_logging()
     try:
         results, out_dir = _run(config, since, until, out)
+        reasons = _attention(config)
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
-        raise typer.Exit(2) from None
+        raise typer.Exit(EXIT_ERROR) from None
     _print_summary(results, out_dir)
+    if reasons:
+        typer.echo("Needs attention:")
+        for r in reasons:
+            typer.echo(f"  - {r}")
+        raise typer.Exit(EXIT_ATTENTION)
+
+
+@app.command()
+def report(config: Path = typer.Option(..., "--config", "-c", help="Plant configuration TOML file."),
+           date: str = typer.Option(None, "--date", help="Production day (YYYY-MM-DD); default the latest."),
+           out: Path = typer.Option(None, help="Folder for the report (default: <output_dir>/reports).")):
+    """Write the daily report for operations (HTML page and XLSX workbook) from the results store."""
+    _setup_logging()
+    try:
+        files = _write_report(config, date, out)
+    except KinetraceError as exc:
+        typer.echo(f"kinetrace: {exc}", err=True)
+        raise typer.Exit(EXIT_ERROR) from None
+    typer.echo(f"Daily report: {files.html}")
+    typer.echo(f"Workbook:     {files.xlsx}")
 
 
 @app.command()
@@ -99,10 +159,35 @@ def demo(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c", help="Demo p
             typer.echo(f"simulating {days} days of the demo plant into {db.parent} ...")
             generate_sample_historian(config, db.parent, seed=seed, days=days)
         results, out_dir = _run(config, None, None, None)
+        files = _write_report(config)
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
-        raise typer.Exit(2) from None
+        raise typer.Exit(EXIT_ERROR) from None
     _print_summary(results, out_dir)
+    typer.echo(f"Daily report: {files.html}")
+    typer.echo(f"Workbook:     {files.xlsx}")
+    typer.echo(f"Dashboard:    make dashboard   (or .venv/bin/kinetrace dashboard --config {config})")
+
+
+@app.command()
+def dashboard(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c",
+                                          help="Plant configuration whose [store] the dashboard reads."),
+              store_url: str = typer.Option(None, "--store-url",
+                                            help="Results store URL (wins over KINETRACE_STORE_URL and the config)."),
+              port: int = typer.Option(8501, "--port", help="Port on 127.0.0.1.")):
+    """Serve the dashboard (read-only view of the results store) on http://127.0.0.1:<port>/."""
+    import os
+    import subprocess
+
+    env = dict(os.environ, KINETRACE_CONFIG=str(Path(config).resolve()))
+    if store_url:
+        env["KINETRACE_STORE_URL"] = store_url
+    cmd = [sys.executable, "-m", "streamlit", "run", str(ROOT / "dashboards" / "app.py"),
+           "--server.address", "127.0.0.1", "--server.port", str(port), "--server.headless", "true",
+           "--browser.gatherUsageStats", "false", "--client.toolbarMode", "minimal",
+           "--theme.primaryColor", "#1f6f8b"]
+    typer.echo(f"kinetrace dashboard: open http://127.0.0.1:{port}/ (Ctrl+C stops it)")
+    raise typer.Exit(subprocess.call(cmd, env=env))
 
 
 if __name__ == "__main__":  # pragma: no cover

@@ -20,38 +20,35 @@ ARTEFACTS = ROOT / "tests" / "artefacts" / "dashboard"
 END = pd.Timestamp("2026-12-01T00:00Z")
 
 
+def _filled(tmp_path_factory, name: str, **kw) -> str:
+    url = f"sqlite:///{tmp_path_factory.mktemp(name) / 'results.sqlite'}"
+    fill_store(url, **kw).close()
+    return url
+
+
 @pytest.fixture(scope="session")
 def hourly_url(tmp_path_factory):
     """91 days of hourly results of R-210 and R-220, with every table filled."""
-    path = tmp_path_factory.mktemp("dash_hourly") / "results.sqlite"
-    url = f"sqlite:///{path}"
-    fill_store(url).close()
-    return url
+    return _filled(tmp_path_factory, "dash_hourly")
 
 
 @pytest.fixture(scope="session")
 def minute_url(tmp_path_factory):
     """15 days of 1-minute results of R-210 only (more rows than the raw-read limit)."""
-    path = tmp_path_factory.mktemp("dash_minute") / "results.sqlite"
-    url = f"sqlite:///{path}"
-    fill_store(url, "2026-11-16T00:00Z", "2026-12-01T00:00Z", "1min", units=("R-210",), reconciliation=False,
-               extras=False).close()
-    return url
+    return _filled(tmp_path_factory, "dash_minute", start="2026-11-16T00:00Z", end="2026-12-01T00:00Z",
+                   freq="1min", units=("R-210",), reconciliation=False, extras=False)
 
 
 @pytest.fixture(scope="session")
 def bare_url(tmp_path_factory):
-    """Series and daily rows only; R-220 has no 'steady' series, nothing of reconciliation."""
-    path = tmp_path_factory.mktemp("dash_bare") / "results.sqlite"
-    url = f"sqlite:///{path}"
-    fill_store(url, "2026-11-01T00:00Z", "2026-12-01T00:00Z", reconciliation=False, extras=False).close()
-    return url
+    """Series and daily rows only; R-220 never steady, nothing of reconciliation or fits."""
+    return _filled(tmp_path_factory, "dash_bare", start="2026-11-01T00:00Z", end="2026-12-01T00:00Z",
+                   reconciliation=False, extras=False)
 
 
 @pytest.fixture(scope="session")
 def empty_url(tmp_path_factory):
     """A store with its tables but no results."""
-    path = tmp_path_factory.mktemp("dash_empty") / "results.sqlite"
-    url = f"sqlite:///{path}"
+    url = f"sqlite:///{tmp_path_factory.mktemp('dash_empty') / 'results.sqlite'}"
     open_store(url).close()
     return url

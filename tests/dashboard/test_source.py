@@ -16,7 +16,7 @@ from kinetrace.store import open_store
 from .conftest import END, ROOT
 
 
-@pytest.mark.parametrize("module", ["downsample", "source", "display", "arrhenius"])
+@pytest.mark.parametrize("module", ["downsample", "source", "display", "arrhenius", "serve"])
 def test_doctests(module):
     mod = importlib.import_module(f"kinedash.{module}")
     res = doctest.testmod(mod)

@@ -1,0 +1,174 @@
+"""The dashboard in a real browser: Debian chromium driven by Playwright, app served on loopback.
+
+Each page: loads, shows a key number equal to the store's, a widget interaction updates it,
+a screenshot is saved under tests/artefacts/dashboard/, and no error element is on the page.
+"""
+
+import shutil
+import tempfile
+from pathlib import Path
+
+import pandas as pd
+import pytest
+
+from kinedash import serve
+from kinetrace.store import open_store
+
+from .conftest import ARTEFACTS, END
+
+pytestmark = pytest.mark.browser
+
+CHROMIUM = Path("/usr/bin/chromium")
+CHROMIUM_ARGS = ["--headless", "--no-sandbox", "--disable-gpu", "--disable-background-networking",
+                 "--disable-component-update", "--disable-sync", "--no-first-run"]
+ERRORS = "[data-testid=stException], [data-testid=stAlertContentError]"
+
+
+@pytest.fixture(scope="module")
+def browser_page():
+    if not CHROMIUM.exists():
+        pytest.fail(f"Debian chromium not found at {CHROMIUM}: `make test` installs it "
+                    "(apt-get install chromium); the browser tests never download a browser")
+    from playwright.sync_api import sync_playwright
+
+    profile = tempfile.mkdtemp(prefix="kt-chromium-")
+    with sync_playwright() as p:
+        ctx = p.chromium.launch_persistent_context(profile, executable_path=str(CHROMIUM), headless=True,
+                                                   args=CHROMIUM_ARGS, viewport={"width": 1400, "height": 1000})
+        ctx.set_default_timeout(30_000)
+        page = ctx.new_page()
+        yield page
+        ctx.close()
+    shutil.rmtree(profile, ignore_errors=True)
+
+
+@pytest.fixture(scope="module")
+def served(hourly_url, tmp_path_factory):
+    log = open(tmp_path_factory.mktemp("streamlit") / "server.log", "wb")
+    proc, base = serve.start({"KINETRACE_STORE_URL": hourly_url}, log=log)
+    yield base
+    serve.stop(proc)
+    log.close()
+
+
+@pytest.fixture(scope="module")
+def store(hourly_url):
+    return open_store(hourly_url, create=False)
+
+
+def metric_value(page, label: str):
+    return page.locator("[data-testid=stMetric]", has_text=label).locator("[data-testid=stMetricValue]")
+
+
+def open_page(page, base: str, path: str, label: str, charts: int = 0):
+    page.goto(f"{base}/{path}")
+    metric_value(page, label).wait_for()
+    if charts:
+        page.wait_for_function(
+            "n => [...document.querySelectorAll('[data-testid=stVegaLiteChart]')]"
+            ".filter(e => e.querySelector('svg, canvas')).length >= n", arg=charts)
+
+
+def finish(page, name: str):
+    from playwright.sync_api import expect
+
+    expect(page.locator(ERRORS)).to_have_count(0)
+    ARTEFACTS.mkdir(parents=True, exist_ok=True)
+    page.screenshot(path=str(ARTEFACTS / f"{name}.png"), full_page=True)
+    assert (ARTEFACTS / f"{name}.png").stat().st_size > 10_000
+
+
+def click_radio(page, text: str):
+    page.locator("[data-testid=stRadio] label", has_text=text).first.click()
+
+
+def test_overview(browser_page, served, store):
+    from playwright.sync_api import expect
+
+    page = browser_page
+    daily = store.daily("R-210")
+    open_page(page, served, "", "R-210 produced")
+    expect(metric_value(page, "R-210 produced")).to_have_text(f"{daily['production_kg'].iloc[-1] / 1000:.2f}")
+    click_radio(page, "last 7 days")
+    expect(metric_value(page, "R-210 produced")).to_have_text(f"{daily['production_kg'].iloc[-7:].mean() / 1000:.2f}")
+    finish(page, "01_plant_at_a_glance")
+
+
+def test_reactor_trends(browser_page, served, store):
+    from playwright.sync_api import expect
+
+    page = browser_page
+    open_page(page, served, "trends", "Mean conversion", charts=4)
+    end = END - pd.Timedelta(hours=1) + pd.Timedelta("1us")
+    for days in (30, 7):
+        if days == 7:
+            click_radio(page, "last 7 days")
+        conv = store.series("R-210", ["conversion"], end - pd.Timedelta(days=days), end)["conversion"].mean()
+        expect(metric_value(page, "Mean conversion")).to_have_text(f"{conv:.4f}")
+    page.wait_for_function("() => document.querySelectorAll('[data-testid=stVegaLiteChart] svg').length >= 4")
+    finish(page, "02_reactor_trends")
+
+
+def test_balances(browser_page, served, store):
+    from playwright.sync_api import expect
+
+    page = browser_page
+    open_page(page, served, "balances", "Largest global-test", charts=3)
+    end = END - pd.Timedelta(hours=1) + pd.Timedelta("1us")
+    for days in (7, 1):
+        if days == 1:
+            click_radio(page, "last 24 h")
+        gt = store.series("R-210", ["global_test"], end - pd.Timedelta(days=days), end)["global_test"].max()
+        expect(metric_value(page, "Largest global-test")).to_have_text(f"{gt:.3g}")
+    finish(page, "03_balances_and_sensors")
+
+
+def test_kinetics(browser_page, served, store):
+    from playwright.sync_api import expect
+
+    from kinedash.arrhenius import steady_points
+
+    page = browser_page
+    open_page(page, served, "kinetics", "Steady periods plotted", charts=1)
+    end = END - pd.Timedelta(hours=1) + pd.Timedelta("1us")
+    ea = store.parameters("R-210").set_index("name").loc["activation_energy:addition", "value"]
+    expect(metric_value(page, "Ea of the stored fit")).to_have_text(f"{ea / 1000:.1f}")
+    for days in (90, 7):
+        if days == 7:
+            click_radio(page, "last 7 days")
+        n = len(steady_points(store, "R-210", "k_apparent:addition", end - pd.Timedelta(days=days), end))
+        expect(metric_value(page, "Steady periods plotted")).to_have_text(str(n))
+    finish(page, "04_kinetics")
+
+
+def test_data_quality(browser_page, served, store):
+    from playwright.sync_api import expect
+
+    page = browser_page
+    q = store.quality("R-210")
+    q = q[~q["measure"].str.contains("gap")]
+    open_page(page, served, "quality", "Readings flagged", charts=1)
+    for which in ("newest", "oldest"):
+        p0 = q["period_start"].max() if which == "newest" else q["period_start"].min()
+        if which == "oldest":
+            page.locator("[data-testid=stSelectbox]", has_text="Period starting").click()
+            page.get_by_role("option", name=p0.strftime("%Y-%m-%d %H:%M")).click()
+        sel = q[q["period_start"] == p0]
+        expect(metric_value(page, "Readings flagged")).to_have_text(str(sel.loc[sel["measure"] != "good", "count"].sum()))
+    finish(page, "05_data_quality")
+
+
+def test_whatif(browser_page, served, store):
+    from playwright.sync_api import expect
+
+    page = browser_page
+    w = store.whatif("R-210").set_index("lever")
+    open_page(page, served, "whatif", "Setting that restores the target", charts=1)
+    expect(page.get_by_text("Estimates only.", exact=False)).to_be_visible()
+    expect(page.get_by_text("relief and runaway studies", exact=False)).to_be_visible()
+    expect(metric_value(page, "Setting that restores the target")).to_have_text("none within limits")
+    click_radio(page, "temperature")
+    t = w.loc["temperature"]
+    expect(metric_value(page, "Setting that restores the target")).to_have_text(f"{t['proposed_value'] - 273.15:.4g}")
+    assert t["safe_low"] <= t["proposed_value"] <= t["safe_high"]
+    finish(page, "06_what_if")
