@@ -15,7 +15,7 @@ import numpy as np
 import pandas as pd
 
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
-from ..errors import DataQualityError
+from ..errors import DataQualityError, KinetraceError
 from .backcalc import back_calculate
 from .reconciliation import reconcile_unit
 from .roles import role_frame
@@ -33,6 +33,7 @@ class UnitResult:
     quality: pd.DataFrame          # per-tag data-quality summary
     summary: dict = field(default_factory=dict)
     faults: list = field(default_factory=list)     # SensorFault records from reconciliation
+    assessment: object = None                       # kinetrace.monitor.UnitAssessment, or None
 
 
 def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, until=None) -> UnitResult:
@@ -50,8 +51,37 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     series = series.join(rec.frame)
     series.attrs.update(attrs)
     result = UnitResult(model, series, roles, data.quality, {}, faults=rec.faults)
+    result.assessment = _assess(cfg, model, series)
     result.summary = summarise(series, model, faults=rec.faults)
+    if result.assessment is not None:
+        result.summary.update(_assessment_summary(result.assessment))
     return result
+
+
+def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame):
+    """The monitoring stage (catalyst trend, drift alarms, production, forecast, what-if) of one unit."""
+    from ..monitor import assess_unit, volume_limits_from_level
+
+    unit_cfg = next(u for u in cfg.units if u.id == model.id)
+    vol_limits = None
+    if model.level_table is not None and unit_cfg.limits.level is not None:
+        vol_limits = volume_limits_from_level(model, unit_cfg.limits.level)
+    elif model.fixed_volume is not None:
+        vol_limits = (model.fixed_volume, model.fixed_volume)
+    try:
+        return assess_unit(series, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
+                           volume_limits=vol_limits)
+    except KinetraceError as exc:
+        log.warning("unit %s: monitoring stage skipped: %s", model.id, exc)
+        return None
+
+
+def _assessment_summary(a) -> dict:
+    out = {"forecast": a.forecast.text if a.forecast is not None else "",
+           "open_alarms": sum(1 for x in a.alarms if a.as_of - x.detected < a.open_for)}
+    if a.trend is not None:
+        out["decay_law"] = a.trend.fit.method
+    return out
 
 
 #: Back-calculated columns also kept from the raw (unreconciled) measurements, as ``<name>_measured``.
@@ -152,6 +182,23 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
                     "evidence": f.evidence(), "state": "open" if f.end >= res.series.index[-1] - pd.Timedelta("2h") else "closed",
                     "closed": None if f.end >= res.series.index[-1] - pd.Timedelta("2h") else f.end}
                     for f in res.faults]))
+            a = res.assessment
+            if a is not None:
+                daily = a.daily_rows()
+                if len(daily):
+                    run.write_daily(uid, daily)
+                params = a.parameter_rows()
+                if len(params):
+                    run.write_parameters(uid, params)
+                alarms = a.alarm_rows()
+                if len(alarms):
+                    run.write_alarms(uid, alarms)
+                fc = a.forecast_row()
+                if fc is not None:
+                    run.write_forecast(uid, **fc)
+                wi = a.whatif_rows()
+                if len(wi):
+                    run.write_whatif(uid, wi)
             run.set_watermark(uid, res.series.index[-1])
         return run.run_id
 
