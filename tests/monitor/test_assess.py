@@ -6,6 +6,7 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from kinetrace.errors import KinetraceError
 from kinetrace.monitor.assess import assess_unit
 from kinetrace.monitor.whatif import production_at
 
@@ -71,3 +72,18 @@ def test_stage_reports_what_it_could_not_do():
     assert res.trend is None and res.forecast_row() is None
     assert any("activity trend" in p for p in res.problems)
     assert len(res.daily_rows()) == 3
+
+
+def test_stage_uses_a_planned_operating_point():
+    # first order at a fixed target: a planned higher feed needs a lower conversion, hence less activity
+    # (X = P / (Q C_A0), a = X / ((1 - X) k tau); Fogler 2016 ch. 5), and the miss date moves later
+    unit, s = _series()
+    now = assess_unit(s, unit)
+    planned = assess_unit(s, unit, operating_point={"feed_flow": 1.2e-3})
+    assert planned.operating_point["feed_flow"] == 1.2e-3
+    x = 0.70 / (1.2e-3 * 1000.0)
+    assert planned.forecast.required_activity == pytest.approx(x / ((1 - x) * 0.01 * 0.4 / 1.2e-3), rel=1e-9)
+    assert planned.forecast.required_activity < now.forecast.required_activity
+    assert planned.forecast.central > now.forecast.central
+    with pytest.raises(KinetraceError, match="operating_point keys"):
+        assess_unit(s, unit, operating_point={"pressure": 2e5})

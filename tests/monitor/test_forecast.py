@@ -125,3 +125,17 @@ def test_forecast_states_other_cases_plainly():
                      index=pd.date_range("2027-01-01", periods=500, freq="h", tz="UTC"))
     flat_fc = forecast_crossing(fit_activity_trend(flat, method="linear", detect_changes=False), 0.5)
     assert flat_fc.status in ("not_declining", "beyond_horizon")
+
+
+def test_input_types_of_the_cstr_helpers():
+    # scalar -> float, ndarray -> ndarray, Series -> Series (same index), NaN -> NaN (STYLE.md habit 8)
+    unit = make_unit()
+    assert isinstance(production_at(unit, activity=1.0, feed_flow=1e-3, temperature=350.0, volume=0.4), float)
+    arr = production_at(unit, activity=np.array([1.0, 0.5]), feed_flow=1e-3, temperature=350.0, volume=0.4)
+    assert isinstance(arr, np.ndarray) and arr.shape == (2,)
+    idx = pd.date_range("2027-01-01", periods=3, freq="h", tz="UTC")
+    q = pd.Series([1e-3, np.nan, 1.1e-3], index=idx)
+    p = production_at(unit, activity=0.9, feed_flow=q, temperature=350.0, volume=0.4)
+    assert isinstance(p, pd.Series) and p.index.equals(idx) and np.isnan(p.iloc[1])
+    a = required_activity(unit, feed_flow=q, temperature=350.0, volume=0.4)
+    assert isinstance(a, pd.Series) and np.isnan(a.iloc[1]) and a.iloc[0] == pytest.approx(1.0)

@@ -33,6 +33,24 @@ def float_values(values: Any, name: str) -> np.ndarray:
     return np.atleast_1d(arr)
 
 
+def as_array(value: Any) -> np.ndarray:
+    """``value`` as a float ndarray (a Series loses its index, NaN kept)."""
+    if isinstance(value, pd.Series):
+        return value.to_numpy(dtype=float, na_value=np.nan)
+    return np.asarray(value, dtype=float)
+
+
+def as_result(result: Any, *inputs: Any) -> Any:
+    """``result`` as float (0-d), Series (index of the first Series input, when lengths match) or ndarray."""
+    result = np.asarray(result, dtype=float)
+    if result.ndim == 0:
+        return float(result)
+    for v in inputs:
+        if isinstance(v, pd.Series) and result.ndim == 1 and len(v) == result.shape[0]:
+            return pd.Series(result, index=v.index)
+    return result
+
+
 def utc_index(series: pd.Series | pd.DataFrame, name: str) -> pd.DatetimeIndex:
     """The index of ``series`` as a tz-aware UTC DatetimeIndex, or a KinetraceError naming ``name``."""
     idx = series.index

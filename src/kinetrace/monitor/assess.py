@@ -147,6 +147,7 @@ def assess_unit(
     day_start: str = "00:00",
     horizon_days: float = 365.0,
     operating_hours: int = 24,
+    operating_point: dict | None = None,
     open_for: str = "3D",
 ) -> UnitAssessment:
     """Trend, alarms, production against target, forecast and what-if for one unit.
@@ -182,6 +183,10 @@ def assess_unit(
         Forecast horizon. [d]
     operating_hours : int
         Hours at the end of the series whose (steady) median is the present operating point.
+    operating_point : dict, optional
+        A planned operating point instead (``feed_flow`` [m^3/s], ``temperature`` [K],
+        ``volume`` [m^3]; keys not given keep their present values) for the
+        activity needed, the forecast and the what-if.
     open_for : str
         How long an alarm stays open after detection (pandas Timedelta string).
 
@@ -193,6 +198,27 @@ def assess_unit(
     ----------
     See the modules of each step: :mod:`.decay`, :mod:`.charts`, :mod:`.steps`,
     :mod:`.production`, :mod:`.forecast`, :mod:`.whatif`.
+
+    Examples
+    --------
+    An invented first-order unit, 30 days of hourly data, activity falling 0.7 %/day:
+
+    >>> import numpy as np, pandas as pd
+    >>> from kinetrace.config.model import RateLawModel, UnitModel
+    >>> from kinetrace.monitor.whatif import production_at
+    >>> law = RateLawModel("power_law", 0.01, 60e3, 350.0, {"orders": {"A": 1.0}})
+    >>> unit = UnitModel("R-7", ("A", "P"), np.array([0.1, 0.1]), ("r1",), np.array([[-1.0], [1.0]]),
+    ...     {"r1": law}, "A", "P", 0.7, 0.4, None, {"A": 1000.0}, (), (330.0, 370.0), (1e-4, 2e-3))
+    >>> t = pd.date_range("2027-01-01", periods=24 * 30, freq="h", tz="UTC")
+    >>> a = 0.98 * np.exp(-0.007 * np.arange(t.size) / 24)
+    >>> s = pd.DataFrame({"activity": a + np.random.default_rng(0).normal(0, 0.01, t.size),
+    ...                   "steady": True, "feed_flow": 1e-3, "temperature": 350.0, "volume": 0.4}, index=t)
+    >>> s["production"] = production_at(unit, activity=a, feed_flow=1e-3, temperature=350.0, volume=0.4)
+    >>> res = assess_unit(s, unit)
+    >>> res.problems, res.forecast.status, len(res.daily_rows())
+    ([], 'crossing', 30)
+    >>> print(res.forecast.text[:62])
+    At the present decline, unit R-7 falls below its target around
     """
     missing = [c for c in ("production", "feed_flow", "temperature", "volume") if c not in series]
     if missing:
@@ -200,6 +226,11 @@ def assess_unit(
     problems: list[str] = []
     as_of = series.index[-1]
     op = _operating_point(series, operating_hours)
+    if operating_point:
+        unknown = sorted(set(operating_point) - {"feed_flow", "temperature", "volume"})
+        if unknown:
+            raise KinetraceError(f"operating_point keys must be feed_flow, temperature, volume; got {unknown}")
+        op.update({k: float(v) for k, v in operating_point.items()})
     trend = None
     charts: list[ChartResult] = []
     alarms: list[Alarm] = []

@@ -37,7 +37,7 @@ import pandas as pd
 
 from kinetrace.config.model import UnitModel
 from kinetrace.errors import KinetraceError
-from kinetrace.monitor._common import format_day, format_range, utc_timestamp
+from kinetrace.monitor._common import as_array, as_result, format_day, format_range, utc_timestamp
 from kinetrace.monitor._unit import unit_reactions
 from kinetrace.monitor.trend import ActivityTrend
 
@@ -79,8 +79,8 @@ def required_activity(
 
     Returns
     -------
-    float or ndarray
-        Activity needed [-]: 0 where the feed alone meets the target, inf where
+    float, ndarray or Series
+        Activity needed [-] (Series when an input is a Series): 0 where the feed alone meets the target, inf where
         no activity can (conversion 1 or equilibrium in the way), NaN for bad inputs.
 
     References
@@ -93,8 +93,8 @@ def required_activity(
     """
     rx = unit_reactions(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
     target = model.target_rate if target_rate is None else float(target_rate)
-    a = rx.required_activity(feed_flow, temperature, volume, target)
-    return float(a) if np.ndim(a) == 0 else a
+    a = rx.required_activity(*(as_array(v) for v in (feed_flow, temperature, volume)), target)
+    return as_result(a, feed_flow, temperature, volume)
 
 
 @dataclass(frozen=True)

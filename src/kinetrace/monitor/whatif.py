@@ -41,7 +41,7 @@ from scipy import optimize
 
 from kinetrace.config.model import UnitModel
 from kinetrace.errors import KinetraceError
-from kinetrace.monitor._common import CAUTIONS
+from kinetrace.monitor._common import CAUTIONS, as_array, as_result
 from kinetrace.monitor._unit import UnitReactions, unit_reactions
 
 __all__ = [
@@ -145,8 +145,9 @@ def production_at(
 
     Returns
     -------
-    float or ndarray
-        Product rate. [mol/s]
+    float, ndarray or Series
+        Product rate [mol/s]: a float for scalars, a Series (same index) when an
+        input is a Series, NaN where an input is NaN.
 
     References
     ----------
@@ -169,8 +170,8 @@ def production_at(
     0.25
     """
     rx = unit_reactions(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
-    p = rx.production(activity, feed_flow, temperature, volume)
-    return float(p) if np.ndim(p) == 0 else p
+    p = rx.production(*(as_array(v) for v in (activity, feed_flow, temperature, volume)))
+    return as_result(p, activity, feed_flow, temperature, volume)
 
 
 def volume_limits_from_level(model: UnitModel, level_limits) -> tuple[float, float]:
