@@ -20,6 +20,7 @@ from kinetrace.monitor.arl import cusum_arl, cusum_limit_for_arl, ewma_arl, ewma
 from kinetrace.monitor.assess import UnitAssessment, assess_unit
 from kinetrace.monitor.charts import (
     ChartResult,
+    ar1_innovations,
     cusum_alarms,
     cusum_statistic,
     detect_drift,
@@ -37,7 +38,7 @@ from kinetrace.monitor.whatif import WhatIf, list_levers, production_at, volume_
 
 __all__ = [
     "CAUTIONS", "CAUSES", "Alarm", "ActivityTrend", "ChartResult", "DecayFit", "Forecast", "UnitAssessment",
-    "WhatIf", "assess_unit", "attribute_shortfall", "catalyst_changes", "cusum_alarms", "cusum_arl", "cusum_limit_for_arl",
+    "WhatIf", "ar1_innovations", "assess_unit", "attribute_shortfall", "catalyst_changes", "cusum_alarms", "cusum_arl", "cusum_limit_for_arl",
     "cusum_statistic", "decay_activity", "detect_drift", "detect_steps", "ewma_alarms", "ewma_arl",
     "ewma_limit_for_arl", "ewma_statistic", "fit_activity_trend", "fit_decay", "forecast_crossing",
     "in_control_estimates", "list_decay_laws", "list_drift_methods", "list_levers", "period_labels",
