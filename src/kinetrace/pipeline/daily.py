@@ -185,6 +185,12 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
             a = res.assessment
             if a is not None:
                 daily = a.daily_rows()
+                # production days are local (site time zone); the store keys them by date inside
+                # the run window, so a local day that begins before the window ends but is
+                # labelled with a later date (the last hours of the data) waits for the next run
+                last_day = (window[1] - pd.Timedelta(microseconds=1)).date()
+                first_day = window[0].date()
+                daily = daily[[first_day <= d <= last_day for d in daily.index]]
                 if len(daily):
                     run.write_daily(uid, daily)
                 params = a.parameter_rows()
