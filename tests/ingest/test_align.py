@@ -119,3 +119,11 @@ def test_screen_runs_rules_in_order_and_counts_each_reading_once():
 def test_grid_edges(step, first, last, n):
     e = grid_edges(first * S, last * S, step)
     assert len(e) - 1 == n and e[0] % (step * S) == 0 and e[-1] > last * S
+
+
+def test_grid_edges_of_a_long_period_keep_the_last_interval():
+    # one year of minutes from 2026-01-01 (np.arange with a float length drops the last edge here)
+    first = int(pd.Timestamp("2026-01-01T00:00Z").value)
+    last = int(pd.Timestamp("2026-12-31T23:59Z").value)
+    e = grid_edges(first, last, 60)
+    assert len(e) - 1 == 365 * 1440 and e[-1] == last + 60 * S

@@ -45,7 +45,8 @@ def grid_edges(first_ns: int, last_ns: int, step: float) -> np.ndarray:
         raise ValueError(f"grid step must be positive, got {step} s")
     lo = (int(first_ns) // d) * d
     hi = (int(last_ns) // d + 1) * d
-    return np.arange(lo, hi + 1, d, dtype=np.int64)
+    n = (hi - lo) // d          # integer count: np.arange(lo, hi + 1, d) may lose the last edge to rounding
+    return lo + d * np.arange(n + 1, dtype=np.int64)
 
 
 def _bin(t: np.ndarray, edges: np.ndarray) -> np.ndarray:

@@ -207,17 +207,15 @@ def _raw_execute(conn, stmt, params: dict):
     return cur
 
 
-def _sql_csv_text(expr: str) -> str:
-    """SQLite expression: a text column as one CSV field (quoted, quotes doubled; NULL -> empty)."""
-    return f"""CASE WHEN {expr} IS NULL THEN '' ELSE '"' || replace({expr}, '"', '""') || '"' END"""
-
-
 def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, until_ns: int,
                  collector: Collector, counts: dict) -> bool:
     """SQLite bulk path: each rowid range comes back as one CSV text (group_concat) parsed by pyarrow.
 
-    Values go through ``printf('%.17g')``, which round-trips a double exactly. Returns False
-    (caller uses the generic path) if the table has no rowid.
+    Numbers go through ``quote()``, which writes a REAL with the digits it needs to
+    round-trip exactly; a text value comes back SQL-quoted (``'abc'``) and is refused
+    like any text. A range whose text does not parse as the expected CSV (a comma or
+    line break inside a text) is read again row by row. Returns False (caller uses
+    the generic path) if the table has no rowid.
     """
     c = source.columns
     raw = conn.connection.driver_connection
@@ -226,15 +224,17 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     tbl = (q(schema) + "." if schema else "") + q(table)
     ts, tg, val = q(c.timestamp), q(c.tag), q(c.value)
     marks = ",".join("?" * len(tags))
-    where, args = [f"{tg} IN ({marks})"], list(tags)
+    where, args = [f"{{p}}{tg} IN ({marks})"], list(tags)
     since, until = _bound(since_ns, source), _bound(until_ns, source)
     if since is not None:
-        where.append(f"{ts} >= ?")
+        where.append(f"{{p}}{ts} >= ?")
         args.append(since)
     if until is not None:
-        where.append(f"{ts} < ?")
+        where.append(f"{{p}}{ts} < ?")
         args.append(until)
-    cond = " AND ".join(where)
+    cond = " AND ".join(where).format(p="")
+    # in the chunk query a unary + keeps SQLite on the rowid range instead of a (tag, time) index
+    cond_rowid = " AND ".join(where).format(p="+")
     # SQLite reads an unknown "double-quoted" name as a string literal: check the columns first
     err = sqlite3.OperationalError
     have = {r[1] for r in raw.execute(f"PRAGMA {q(schema) + '.' if schema else ''}table_info({q(table)})")}
@@ -252,44 +252,45 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     counts.setdefault("rows", 0)
     if lo is None:
         return True
-    code = "CASE " + tg + " " + " ".join(f"WHEN ? THEN {i}" for i in range(len(tags))) + " ELSE -1 END"
-    value = (f"CASE WHEN typeof({val}) IN ('integer', 'real') THEN printf('%.17g', {val}) "
-             f"ELSE {_sql_csv_text(val)} END")
-    fields = [_sql_csv_text(ts), code, value]
-    names = [c.timestamp, TAG_CODE, c.value]
-    code_args = list(tags)
-    qual_args: list = []
+    ifn = lambda e: f"ifnull({e}, '')"   # noqa: E731  (NULL would blank the whole line)
+    # quote() writes a REAL with as many digits as it needs to round-trip exactly
+    fields = [ifn(ts), ifn(tg), f"CASE WHEN {val} IS NULL THEN '' ELSE quote({val}) END"]
+    names = [c.timestamp, c.tag, c.value]
     if c.quality:
-        qq = q(c.quality)
-        if good:
-            fields.append(f"""CASE WHEN {qq} IN ({",".join("?" * len(good))}) THEN '' WHEN {qq} IS NULL THEN '""' """
-                          f"ELSE {_sql_csv_text(qq)} END")
-            qual_args = list(good)
-            names.append(QUALITY_BAD)
-        else:
-            fields.append(_sql_csv_text(qq))
-            names.append(c.quality)
+        fields.append(ifn(q(c.quality)))
+        names.append(c.quality)
     line = " || ',' || ".join(fields)
     sql = (f"SELECT group_concat(line, char(10)), count(*) FROM (SELECT {line} AS line FROM {tbl} "
-           f"WHERE rowid >= ? AND rowid < ? AND {cond})")
-    types = {n: pa.string() for n in names}
-    types[TAG_CODE] = pa.int32()
-    fast = dict(types, **{c.value: pa.float64(), c.timestamp: pa.dictionary(pa.int32(), pa.string())})
+           f"WHERE rowid >= ? AND rowid < ? AND {cond_rowid})")
+    d = pa.dictionary(pa.int32(), pa.string())
+    fast = {c.timestamp: d, c.tag: d, c.value: pa.float64(), **({c.quality: d} if c.quality else {})}
+    text_types = {n: pa.string() for n in names}
+    opts = dict(strings_can_be_null=True, null_values=[""], quoted_strings_can_be_null=False)
+    ro = pcsv.ReadOptions(column_names=names, use_threads=True, block_size=1 << 20)
+    po = pcsv.ParseOptions(quote_char="'", double_quote=True)
     step = source.chunk_rows
     for a in range(lo, hi + 1, step):
-        text, n = raw.execute(sql, code_args + qual_args + [a, a + step] + args).fetchone()
+        text, n = raw.execute(sql, [a, a + step] + args).fetchone()
         if not n:
             continue
         buf = pa.py_buffer(text.encode("utf-8"))
-        opts = dict(strings_can_be_null=True, null_values=[""], quoted_strings_can_be_null=False)
-        ro = pcsv.ReadOptions(column_names=names, use_threads=True, block_size=1 << 20)
-        try:
-            tab = pcsv.read_csv(buf, read_options=ro, convert_options=pcsv.ConvertOptions(column_types=fast, **opts))
-        except pa.ArrowInvalid:
-            tab = pcsv.read_csv(buf, read_options=ro, convert_options=pcsv.ConvertOptions(column_types=types, **opts))
-        tab = tab.unify_dictionaries()
-        by = {h: tab.column(h).combine_chunks() for h in names}
-        collector.add(*_columns(collector, by, source, tags, good))
+        tab = None
+        for types in (fast, text_types):
+            try:
+                tab = pcsv.read_csv(buf, read_options=ro, parse_options=po,
+                                    convert_options=pcsv.ConvertOptions(column_types=types, **opts))
+                break
+            except pa.ArrowInvalid:
+                continue
+        if tab is None or tab.num_rows != n:
+            # a text with a comma, quote or line break: read this rowid range row by row instead
+            cur = raw.execute(f"SELECT {ts}, {tg}, {val}{', ' + q(c.quality) if c.quality else ''} FROM {tbl} "
+                              f"WHERE rowid >= ? AND rowid < ? AND {cond_rowid}", [a, a + step] + args)
+            _add_rows(collector, names, cur.fetchall(), source, tags, None)
+        else:
+            tab = tab.unify_dictionaries()
+            by = {h: tab.column(h).combine_chunks() for h in names}
+            collector.add(*_columns(collector, by, source, tags, None))
         counts["rows"] += int(n)
         counts["chunks"] += 1
     return True
