@@ -20,6 +20,10 @@ COLOURS = {
     "alarm": "#a4161a",       # dark red
 }
 
+#: Short names of the ranges, accepted in the page address (``?range=7d``) for bookmarks.
+RANGE_CODES = {"1d": "last 24 h", "7d": "last 7 days", "30d": "last 30 days", "90d": "last 90 days",
+               "365d": "last 365 days", "all": "everything"}
+
 #: Range choices of the time range picker: label -> days before the unit's last result.
 RANGES = {"last 24 h": 1, "last 7 days": 7, "last 30 days": 30, "last 90 days": 90, "last 365 days": 365,
           "everything": None, "custom dates": "custom"}
@@ -68,7 +72,15 @@ def pick_range(url: str, unit: str, default: str = "last 30 days", key: str = "k
     first = cached.first_time(url, unit)
     end = (pd.Timestamp.now(tz="UTC") if last is None else pd.Timestamp(last)) + pd.Timedelta("1us")
     labels = list(RANGES)
-    choice = st.radio("Time range", labels, index=labels.index(default), horizontal=True, key=key)
+    state, kept = st.session_state, key + "_kept"
+    asked = RANGE_CODES.get(st.query_params.get("range", ""))
+    if asked and kept not in state:
+        state[kept] = asked
+    if state.get(kept) not in labels:
+        state[kept] = default
+    state[key] = state[kept]          # widget state does not survive a page switch; the plain key does
+    choice = st.radio("Time range", labels, horizontal=True, key=key,
+                      on_change=lambda: state.__setitem__(kept, state[key]))
     days = RANGES[choice]
     if days == "custom":
         week = (end - pd.Timedelta(days=7)).date()

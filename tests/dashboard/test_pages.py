@@ -163,3 +163,20 @@ def test_missing_variables_and_no_steady_window(monkeypatch, bare_url):
     at.switch_page("views/kinetics.py").run()
     assert any("No steady window of R-220" in i.value for i in at.info)
     assert any("Fitted parameters: not available yet" in i.value for i in at.info)
+
+
+def test_range_from_address_and_kept_across_pages(monkeypatch, hourly_url):
+    store = open_store(hourly_url, create=False)
+    monkeypatch.setenv("KINETRACE_STORE_URL", hourly_url)
+    at = AppTest.from_file(str(APP), default_timeout=60)
+    at.query_params["range"] = "7d"
+    at.run()
+    at.switch_page("views/unit.py").run()
+    end = END - pd.Timedelta(hours=1) + pd.Timedelta("1us")
+    week = store.series("R-210", ["conversion"], end - pd.Timedelta(days=7), end)["conversion"].mean()
+    assert at.radio(key="kt_range").value == "last 7 days"
+    assert metric(at, "Mean conversion") == f"{week:.4f}"
+    at.radio(key="kt_range").set_value("last 24 h").run()
+    at.switch_page("views/overview.py").run()
+    at.switch_page("views/unit.py").run()
+    assert at.radio(key="kt_range").value == "last 24 h"
