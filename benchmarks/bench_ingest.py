@@ -176,6 +176,7 @@ def main() -> None:
     ap.add_argument("--days", type=int, default=365)
     ap.add_argument("--grid", type=int, default=60, help="grid step [s]")
     ap.add_argument("--keep", type=Path, default=None, help="folder for the generated files (kept)")
+    ap.add_argument("--reuse", action="store_true", help="reuse the files already in --keep")
     ap.add_argument("--one", nargs=3, help=argparse.SUPPRESS)
     a = ap.parse_args()
     if a.one:
@@ -184,7 +185,10 @@ def main() -> None:
     folder = a.keep or Path(tempfile.mkdtemp(prefix="kt-bench-"))
     folder.mkdir(parents=True, exist_ok=True)
     t0 = time.perf_counter()
-    csv, db, n = generate(folder, a.days)
+    if a.reuse and (folder / "bench_long.csv").exists() and (folder / "bench.sqlite").exists():
+        csv, db, n = folder / "bench_long.csv", folder / "bench.sqlite", a.days * 1440 * len(TAGS)
+    else:
+        csv, db, n = generate(folder, a.days)
     print(f"generated {n:,} long rows ({a.days} days x 1440 min x {len(TAGS)} tags) in {time.perf_counter() - t0:.1f} s; "
           f"CSV {csv.stat().st_size / 2**20:.0f} MB, SQLite {db.stat().st_size / 2**20:.0f} MB; grid {a.grid} s")
     res = {}

@@ -59,6 +59,37 @@ def _bin(t: np.ndarray, edges: np.ndarray) -> np.ndarray:
     return np.searchsorted(edges, t, side="right") - 1
 
 
+_SLICE = 1 << 16
+
+
+def _accumulate(start, end, x, edges, integ, cover, dv, dc) -> None:
+    """Add held segments [start, end) of value x to the interval integrals (in place)."""
+    nb = len(edges) - 1
+    use = end > start
+    start, end, x = start[use], end[use], x[use]
+    bs = np.minimum(_bin(start, edges), nb - 1)
+    be = np.minimum(_bin(end, edges), nb)            # interval holding the (exclusive) end
+    same = bs == be
+    len_same = (end[same] - start[same]) / 1e9       # float seconds from each interval's own edge
+    integ += np.bincount(bs[same], weights=x[same] * len_same, minlength=nb + 1)
+    cover += np.bincount(bs[same], weights=len_same, minlength=nb + 1)
+    cr = ~same
+    bs, be, x, start, end = bs[cr], be[cr], x[cr], start[cr], end[cr]
+    head = (edges[bs + 1] - start) / 1e9
+    tail = (end - edges[np.minimum(be, nb)]) / 1e9
+    integ += np.bincount(bs, weights=x * head, minlength=nb + 1)
+    cover += np.bincount(bs, weights=head, minlength=nb + 1)
+    integ += np.bincount(be, weights=x * tail, minlength=nb + 1)
+    cover += np.bincount(be, weights=tail, minlength=nb + 1)
+    mid = be - bs > 1
+    if mid.any():
+        a, b, xv = bs[mid] + 1, be[mid], x[mid]
+        np.add.at(dv, a, xv)
+        np.add.at(dv, b, -xv)
+        np.add.at(dc, a, 1.0)
+        np.add.at(dc, b, -1.0)
+
+
 def time_weighted_mean(ts: np.ndarray, value: np.ndarray, edges: np.ndarray, max_gap: float,
                        min_coverage: float = MIN_COVERAGE) -> tuple[np.ndarray, np.ndarray]:
     """Time-weighted average of a sample-and-hold signal over each grid interval.
@@ -98,38 +129,17 @@ def time_weighted_mean(ts: np.ndarray, value: np.ndarray, edges: np.ndarray, max
         return np.full(max(nb, 0), np.nan), np.zeros(max(nb, 0))
     step = (edges[1] - edges[0]) / 1e9
     gap_ns = np.int64(round(max_gap * 1e9))
-    nxt = np.r_[ts[1:], np.int64(np.iinfo(np.int64).max)]
-    end = np.minimum(nxt, ts + gap_ns)
-    start = np.clip(ts, edges[0], edges[-1])
-    end = np.clip(end, edges[0], edges[-1])
-    use = end > start
-    start, end, x = start[use], end[use], value[use]
-    # offsets inside bins as float seconds, relative to each bin's own edge (keeps precision)
-    bs = np.minimum(_bin(start, edges), nb - 1)
-    be = np.minimum(_bin(end, edges), nb)            # bin holding the (exclusive) end
-    same = bs == be
     integ = np.zeros(nb + 1)
     cover = np.zeros(nb + 1)
-    len_same = (end[same] - start[same]) / 1e9
-    integ += np.bincount(bs[same], weights=x[same] * len_same, minlength=nb + 1)
-    cover += np.bincount(bs[same], weights=len_same, minlength=nb + 1)
-    cr = ~same
-    head = (edges[bs[cr] + 1] - start[cr]) / 1e9
-    tail = (end[cr] - edges[np.minimum(be[cr], nb)]) / 1e9
-    integ += np.bincount(bs[cr], weights=x[cr] * head, minlength=nb + 1)
-    cover += np.bincount(bs[cr], weights=head, minlength=nb + 1)
-    integ += np.bincount(be[cr], weights=x[cr] * tail, minlength=nb + 1)
-    cover += np.bincount(be[cr], weights=tail, minlength=nb + 1)
-    # whole bins strictly between: difference arrays of the held value and of full coverage
-    mid = be[cr] - bs[cr] > 1
-    if mid.any():
-        a, b, xv = bs[cr][mid] + 1, be[cr][mid], x[cr][mid]
-        dv = np.zeros(nb + 2)
-        dc = np.zeros(nb + 2)
-        np.add.at(dv, a, xv)
-        np.add.at(dv, b, -xv)
-        np.add.at(dc, a, 1.0)
-        np.add.at(dc, b, -1.0)
+    dv = np.zeros(nb + 2)          # difference arrays for whole intervals held by one reading
+    dc = np.zeros(nb + 2)
+    for a in range(0, ts.size, _SLICE):   # slices of readings keep the temporaries small
+        b = min(a + _SLICE, ts.size)
+        nxt = np.r_[ts[a + 1:b + 1], np.int64(np.iinfo(np.int64).max)][: b - a]
+        end = np.minimum(nxt, ts[a:b] + gap_ns)
+        _accumulate(np.clip(ts[a:b], edges[0], edges[-1]), np.clip(end, edges[0], edges[-1]), value[a:b], edges,
+                    integ, cover, dv, dc)
+    if dc.any():
         integ += np.cumsum(dv)[: nb + 1] * step
         cover += np.cumsum(dc)[: nb + 1] * step
     integ, cover = integ[:nb], cover[:nb]

@@ -29,6 +29,8 @@ MAX_DETAILS = 50
 class TagBuffer:
     """Readings of one tag as they arrive (file order)."""
 
+    tmin: int = NAT                               # earliest / latest time stamp read (any fate but a bad time) [ns]
+    tmax: int = NAT
     ts: list = field(default_factory=list)        # int64 [ns UTC]
     value: list = field(default_factory=list)     # float64 [tag unit]
     fate: list = field(default_factory=list)      # int8
@@ -266,6 +268,11 @@ class Collector:
             amb = np.flatnonzero(f == AMBIGUOUS_TIME)
             if amb.size:
                 buf.second.append((amb + buf.n, second[r][amb]))
+            timed = utc[r][(f != BAD_TIME) & (f != NONEXISTENT_TIME)]
+            if timed.size:
+                lo_t, hi_t = int(timed.min()), int(timed.max())
+                buf.tmin = lo_t if buf.tmin == NAT else min(buf.tmin, lo_t)
+                buf.tmax = hi_t if buf.tmax == NAT else max(buf.tmax, hi_t)
             buf.ts.append(utc[r])
             buf.value.append(vals[r])
             buf.fate.append(f)

@@ -141,8 +141,26 @@ def read_unit(cfg: PlantConfig, unit: UnitModel | Unit | str, *, config_path, si
         report = read_csv_source(resolve_path(config_path, src.path), src, col, {t.tag: t for t in u.tags})
     else:
         report = read_sql_source(src, col, [t.tag for t in u.tags], lo, hi, base_dir=base, engine=engine)
+    _release_memory()
     return assemble(cfg, u, model, scales, col, report, grid=grid, since_ns=since_ns, until_ns=until_ns,
                     complete_only=complete_only)
+
+
+def _release_memory() -> None:
+    """Hand memory freed by the parsers back to the system before alignment (lower peak)."""
+    import pyarrow as pa
+
+    for pool in (pa.default_memory_pool(), pa.system_memory_pool()):
+        try:
+            pool.release_unused()
+        except (AttributeError, NotImplementedError):
+            pass
+    try:   # glibc keeps freed blocks of the parser threads' arenas unless asked
+        import ctypes
+
+        ctypes.CDLL("libc.so.6").malloc_trim(0)
+    except (OSError, AttributeError):
+        pass
 
 
 def _resolve_repeated_hour(ts, fate, second):
@@ -172,57 +190,44 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     shift_max = int(max((t.dead_time for t in u.tags), default=0.0) * 1e9)
     src = cfg.source
     names = col.names
-    per_tag = []
-    for i, t in enumerate(u.tags):
-        ts, val, fate, second = col.arrays(i)
-        ts, fate = _resolve_repeated_hour(ts, fate, second)
-        late, ts, (val, fate) = screening.sort_readings(ts, val, fate)
-        frozen = None if t.sampling == "lab" else (t.frozen_after if t.frozen_after is not None else src.frozen_after)
-        fate = screening.screen(ts, val, fate, valid_range=t.valid_range, max_rate=t.max_rate, frozen_after=frozen)
-        per_tag.append((ts, val, fate, late))
-    # grid
-    good_span = [_good_span(ts, f) for ts, _, f, _ in per_tag]   # (first, last) good time of each tag [ns]
-    if since_ns != NAT:
-        first = since_ns
-    else:
-        cand = [g[0] for g in good_span if g]
-        first = min(cand) if cand else NAT
-    if until_ns == NAT and complete_only:
-        cand = [g[1] for g in good_span if g]
-        if cand:   # end at the start of the interval holding the latest reading: it is still filling
-            step = int(round(grid * 1e9))
-            until_ns = (max(cand) - shift_max) // step * step
-            if first != NAT and until_ns <= first:
-                return None
-    if until_ns != NAT:
-        last = until_ns - 1
-    else:
-        cand = [g[1] for g in good_span if g]
-        last = max(cand) if cand else NAT
-    required = _required(u, model)
-    counts = [ts.size for ts, _, _, _ in per_tag]
+    # grid: the window, else the span of the time stamps read (so the grid is known before screening,
+    # and each tag is screened, aligned and freed in turn)
+    spans = [(b.tmin, b.tmax) for b in col.buffers if b.tmin != NAT]
+    first = since_ns if since_ns != NAT else (min(a for a, _ in spans) if spans else NAT)
+    if until_ns == NAT and complete_only and spans:
+        step = int(round(grid * 1e9))     # end where the interval holding the latest reading starts
+        until_ns = (max(z for _, z in spans) - shift_max) // step * step
+        if first != NAT and until_ns <= first:
+            return None
+    last = until_ns - 1 if until_ns != NAT else (max(z for _, z in spans) if spans else NAT)
+    counts = [b.n for b in col.buffers]
     problems = []
-    for key, tags in required.items():
+    for key, tags in _required(u, model).items():
         if all(counts[names.index(t)] == 0 for t in tags):
             problems.append(Problem(", ".join(tags), f"no readings in the source for {_window_text(since_ns, until_ns)}; "
                                     f"unit {u.id} needs a {key[0]} tag{' for ' + key[1] if key[1] else ''} "
                                     "(check the tag name against the historian)"))
-    if first == NAT or problems:
-        if first == NAT and not problems:
-            problems.append(Problem(f"unit {u.id}", f"no usable readings of any of its tags for {_window_text(since_ns, until_ns)}"))
-            problems += _refusals(col, per_tag)
+    if first == NAT and not problems:
+        problems.append(Problem(f"unit {u.id}", f"no readings with a usable time stamp for "
+                                f"{_window_text(since_ns, until_ns)}"))
+    if problems:
         raise IngestError(_source_name(cfg), problems + [Problem(w, m) for w, m in col.notes[:20]])
     edges = align.grid_edges(first, last, grid)
     if until_ns != NAT and edges[-1] > until_ns and (until_ns - edges[0]) % int(grid * 1e9) == 0:
         edges = edges[edges <= until_ns]
     index = pd.DatetimeIndex(pd.to_datetime(edges[:-1], utc=True), name="timestamp")
     nb = len(index)
-    values: dict[str, np.ndarray] = {}     # filled tag by tag while the tag's readings are freed
-    valid: dict[str, np.ndarray] = {}
+    # column-major, so each tag's column is one contiguous run of memory, written once
+    values = np.empty((nb, len(names)), order="F")
+    valid = np.empty((nb, len(names)), dtype=bool, order="F")
     rows = []
     flagged = []
     for i, t in enumerate(u.tags):
-        ts, val, fate, late = per_tag[i]
+        ts, val, fate, second = col.arrays(i)
+        ts, fate = _resolve_repeated_hour(ts, fate, second)
+        late, ts, (val, fate) = screening.sort_readings(ts, val, fate)
+        frozen = None if t.sampling == "lab" else (t.frozen_after if t.frozen_after is not None else src.frozen_after)
+        fate = screening.screen(ts, val, fate, valid_range=t.valid_range, max_rate=t.max_rate, frozen_after=frozen)
         shift = np.int64(round(t.dead_time * 1e9))
         g = fate == GOOD
         tg, xg = ts[g] - shift, scales[t.tag].to_si(val[g])
@@ -231,11 +236,11 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
             carried = np.zeros(nb, bool)
         else:
             v, carried = align.sample_mean_carry(tg, xg, edges, t.max_age)
+        del tg, xg
         taint_mask = np.isin(fate, TAINTING)
         tainted = align.count_per_interval(ts[taint_mask] - shift, edges) > 0
-        values[t.tag] = v
-        valid[t.tag] = ok = ~np.isnan(v) & ~tainted
-        per_tag[i] = None
+        values[:, i] = v
+        valid[:, i] = ok = ~np.isnan(v) & ~tainted
         fc = np.bincount(fate, minlength=N_FATES)
         row = {"rows_read": int(ts.size)}
         row.update({FATE_NAMES[k]: int(fc[k]) for k in range(N_FATES)})
@@ -246,10 +251,14 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
         bad = ~g
         if bad.any():
             flagged.append((i, ts[bad], val[bad], fate[bad]))
-    vdf = pd.DataFrame(values, index=index, columns=names)
-    values.clear()
-    mdf = pd.DataFrame(valid, index=index, columns=names)
-    valid.clear()
+        del ts, val, fate, g, v
+    if not any(r["good"] for r in rows):
+        raise IngestError(_source_name(cfg), [Problem(f"unit {u.id}", "no usable readings of any of its tags for "
+                                                      f"{_window_text(since_ns, until_ns)}")]
+                          + _refusals(col, rows) + [Problem(w, m) for w, m in col.notes[:20]])
+    vdf = pd.DataFrame(values, index=index, columns=names, copy=False)
+    mdf = pd.DataFrame(valid, index=index, columns=names, copy=False)
+    del values, valid
     quality = pd.DataFrame(rows, index=pd.Index(names, name="tag"))
     notes = [Problem(w, m) for w, m in col.notes]
     for i, t in enumerate(u.tags):
@@ -273,12 +282,6 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     return data
 
 
-def _good_span(ts: np.ndarray, fate: np.ndarray):
-    """First and last time of the good readings of sorted arrays, or None. [ns]"""
-    good = np.flatnonzero(fate == GOOD)
-    return (int(ts[good[0]]), int(ts[good[-1]])) if good.size else None
-
-
 def _flagged_frame(names: list[str], flagged: list) -> pd.DataFrame:
     """One row per refused reading: tag, UTC time (NaT if unreadable), value [tag unit], fate."""
     if not flagged:
@@ -294,18 +297,16 @@ def _flagged_frame(names: list[str], flagged: list) -> pd.DataFrame:
         "fate": pd.Categorical.from_codes(fate, categories=[FATE_NAMES[k] for k in range(N_FATES)]).astype(str)})
 
 
-def _refusals(col: Collector, per_tag) -> list[Problem]:
+def _refusals(col: Collector, rows: list[dict]) -> list[Problem]:
     """Why each tag's readings were refused: counts by fate and the first located message."""
     out = []
-    for i, name in enumerate(col.names):
-        fate = per_tag[i][2]
-        if fate.size == 0:
+    for name, r in zip(col.names, rows):
+        if not r["rows_read"]:
             continue
-        counts = np.bincount(fate, minlength=N_FATES)
-        text = ", ".join(f"{int(counts[k])} {FATE_NAMES[k]}" for k in range(1, N_FATES) if counts[k])
+        text = ", ".join(f"{r[FATE_NAMES[k]]} {FATE_NAMES[k]}" for k in range(1, N_FATES) if r[FATE_NAMES[k]])
         first = next((d for d in col.details if d.tag == name), None)
         more = f" (first: {first.where}: {first.message})" if first else ""
-        out.append(Problem(name, f"all {fate.size} readings refused: {text}{more}"))
+        out.append(Problem(name, f"all {r['rows_read']} readings refused: {text}{more}"))
     return out
 
 
