@@ -2,7 +2,6 @@
 
 import numpy as np
 import pandas as pd
-import pytest
 import sqlalchemy as sa
 
 from kinetrace.ingest import read_new, read_unit

@@ -16,7 +16,7 @@ import sqlalchemy as sa
 
 from kinetrace.ingest import read_unit
 
-from .synth import R220, config, iso, readings, write_long, write_sqlite, write_wide
+from .synth import config, iso, readings, write_long, write_sqlite, write_wide
 
 SINCE, UNTIL = "2026-09-01T01:00:00Z", "2026-09-01T05:00:00Z"
 

@@ -15,7 +15,6 @@ up to the longest dead time after ``until``.
 
 from __future__ import annotations
 
-from datetime import datetime
 from pathlib import Path
 
 import numpy as np
@@ -29,8 +28,8 @@ from . import align, screening
 from .collect import Collector
 from .conversion import unit_scales
 from .csv_source import read_csv_source
-from .fates import AMBIGUOUS_TIME, CONFLICT, FATE_NAMES, FROZEN, GOOD, N_FATES, OUT_OF_RANGE, SPIKE, \
-    BAD_QUALITY, BAD_VALUE, fate_names
+from .fates import (AMBIGUOUS_TIME, BAD_QUALITY, BAD_VALUE, CONFLICT, FATE_NAMES, FROZEN, GOOD, N_FATES,
+                    OUT_OF_RANGE, SPIKE)
 from .sql_source import read_sql_source
 from .timestamps import NAT, place_repeated_hour
 from .unitdata import UnitData, check_unit_data

@@ -169,11 +169,8 @@ def place_repeated_hour(group: np.ndarray, wall_order: np.ndarray) -> np.ndarray
     new = np.r_[True, g[1:] != g[:-1]]
     back = np.r_[False, (w[1:] <= w[:-1]) & ~new[1:]]
     gid = np.cumsum(new) - 1
-    seen_back = np.zeros(n, dtype=np.int64)
-    # running count of backward steps within each group
-    cum = np.cumsum(back)
-    start = cum[np.flatnonzero(new)]
-    seen_back = cum - start[gid] + back[np.flatnonzero(new)][gid]
+    cum = np.cumsum(back)                          # backward steps so far, counted from each group's start
+    seen_back = cum - cum[np.flatnonzero(new)][gid]
     any_back = np.bincount(gid, weights=back, minlength=gid.max() + 1) > 0
     res = np.where(seen_back > 0, 1, 0).astype(np.int8)
     res[~any_back[gid]] = -1
