@@ -46,8 +46,11 @@ def first_time(url: str, unit: str):
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)
-def chart_series(url: str, unit: str, variables: tuple, start, end, points: int = source.CHART_POINTS) -> dict:
-    return source.chart_series(store_for(url), unit, list(variables), start, end, points=points)
+def chart_series(url: str, unit: str, variables: tuple, start, end, points: int = source.CHART_POINTS,
+                 follow: tuple = (), steady_only: tuple = ()) -> dict:
+    """See :func:`kinedash.source.chart_series`; ``follow`` as (follower, leader) pairs."""
+    return source.chart_series(store_for(url), unit, list(variables), start, end, points=points,
+                               follow=dict(follow), steady_only=steady_only)
 
 
 @st.cache_data(ttl=TTL, show_spinner=False)

@@ -75,3 +75,21 @@ def fmt(value, spec: str = ".3g", unit: str = "") -> str:
     if not math.isfinite(v):
         return "not available"
     return f"{v:{spec}}" + (f" {unit}" if unit else "")
+
+
+#: Data-quality measures that are totals, not screening rules. [-]
+QUALITY_TOTALS = ("rows_read", "good")
+
+
+def quality_kinds(measures) -> "np.ndarray":
+    """Kind of each data-quality measure: ``"total"`` (rows read, good), ``"interval"`` (grid
+    interval counts and gaps: names ending in ``intervals`` or holding ``gap``) or ``"rule"``
+    (readings flagged by one screening rule).
+
+    >>> quality_kinds(["good", "frozen", "missing_intervals", "rows_read", "gap_hours"]).tolist()
+    ['total', 'rule', 'interval', 'total', 'interval']
+    """
+    m = np.asarray([str(x) for x in measures], dtype=object)
+    interval = np.array([x.endswith("intervals") or "gap" in x for x in m], dtype=bool)
+    total = np.isin(m, QUALITY_TOTALS)
+    return np.where(total, "total", np.where(interval, "interval", "rule"))

@@ -205,7 +205,7 @@ def bucket_stats(store: Store, key_id: int, start, end, n_buckets: int, how: str
 
 
 def chart_series(store: Store, unit: str, variables, start, end, *, points: int = CHART_POINTS,
-                 follow: dict | None = None) -> dict:
+                 follow: dict | None = None, steady_only=()) -> dict:
     """Series of one unit ready to draw, thinned to about ``points`` per variable.
 
     Parameters
@@ -221,6 +221,10 @@ def chart_series(store: Store, unit: str, variables, start, end, *, points: int 
     follow : dict, optional
         ``follower -> leader``: a follower (e.g. a band edge) keeps the leader's LTTB
         rows, so a band and its line share time stamps. Buckets always align.
+    steady_only : sequence of str
+        Variables kept only where the unit's ``steady`` flag is 1 (read samples), or in
+        buckets where every row is steady (bucketed reads); their ``stats`` cover the
+        same rows. Ignored when the unit has no ``steady`` series.
 
     Returns
     -------
@@ -235,20 +239,29 @@ def chart_series(store: Store, unit: str, variables, start, end, *, points: int 
     out: dict = {"missing": [v for v in variables if v not in keys], "stats": {}, "bucketed": False}
     if not keys:
         return out
+    flag = _key_ids(store, unit, ["steady"])
+    masked = {v for v in steady_only if v in keys} if flag else set()
+    if masked and "steady" not in keys:
+        keys = dict(keys, steady=flag["steady"])
     probe = max(keys.values(), key=lambda k: k)
     bucketed = estimated_rows(store, probe, start, end) > RAW_LIMIT
     out["bucketed"] = bucketed
     if bucketed:
         with ThreadPoolExecutor(max_workers=min(4, len(keys))) as pool:
             got = dict(zip(keys, pool.map(lambda k: bucket_stats(store, k, start, end, points), keys.values())))
+        steady_buckets = got["steady"].index[got["steady"]["lo"] >= 1.0] if masked else None
         for v, b in got.items():
+            if v in masked:
+                b = b.loc[b.index.intersection(steady_buckets)]
             mean = b["total"] / b["count"]
             out[v] = pd.DataFrame({"value": mean, "lo": b["lo"], "hi": b["hi"]}, index=b.index)
             n = int(b["count"].sum())
             out["stats"][v] = (float(b["total"].sum()), n, float(b["lo"].min()) if n else np.nan,
                                float(b["hi"].max()) if n else np.nan)
-        return out
+        return _without_flag(out, variables)
     wide = store.series(unit, list(keys), start, end)
+    for v in masked:
+        wide[v] = wide[v].where(wide["steady"] == 1.0)
     follow = {f: lead for f, lead in (follow or {}).items() if f in keys and lead in keys}
     for v in sorted(keys, key=lambda v: v in follow):
         col = wide[v].dropna()
@@ -261,6 +274,14 @@ def chart_series(store: Store, unit: str, variables, start, end, *, points: int 
         kept = thin(wide[[v]].rename(columns={v: "value"}), "value", points, method="lttb")
         out[v] = pd.DataFrame({"value": kept["value"], "lo": kept["value"], "hi": kept["value"]},
                               index=kept.index)
+    return _without_flag(out, variables)
+
+
+def _without_flag(out: dict, variables) -> dict:
+    """Drop the ``steady`` flag when it was read only to mask other variables."""
+    if "steady" not in variables:
+        out.pop("steady", None)
+        out["stats"].pop("steady", None)
     return out
 
 

@@ -4,6 +4,7 @@ flagged sensors with bias estimates and onset."""
 import numpy as np
 import pandas as pd
 import streamlit as st
+from scipy.stats import chi2
 
 from kinedash import cached, ui
 from kinedash.charts import trend_chart
@@ -20,9 +21,9 @@ with top[1]:
 cat = cached.catalog(url, unit)
 units_of = dict(zip(cat["variable"], cat["unit_of_measure"]))
 closures = sorted(v for v in units_of if v.startswith("closure:"))
-adjustments = sorted(v for v in units_of if v.startswith("adjustment:"))
+adjustments = sorted(v for v in units_of if v.startswith(("adjust_z:", "adjustment:")))
 biases = sorted(v for v in units_of if v.startswith("bias:"))
-gt = [v for v in ("global_test", "global_test_limit") if v in units_of]
+gt = [v for v in ("global_test", "global_test_limit", "global_test_dof", "global_test_alarm") if v in units_of]
 palette = ["#1f6f8b", "#c2571a", "#6a994e", "#7b2cbf", "#bc4749", "#386641"]
 
 st.subheader("Balance closure")
@@ -39,30 +40,43 @@ if "global_test" in gt:
     data = cached.chart_series(url, unit, tuple(gt), start, end)
     stat = data.get("global_test")
     s, n, lo, hi = data["stats"].get("global_test", (np.nan, 0, np.nan, np.nan))
-    limit = data["stats"].get("global_test_limit")
-    lim = limit[0] / limit[1] if limit and limit[1] else np.nan
-    st.metric("Largest global-test statistic in range [-]", fmt(hi, ".3g"),
-              delta=None if not np.isfinite(lim) else f"limit {lim:.3g}", delta_color="off")
+    limit, dof = data["stats"].get("global_test_limit"), data["stats"].get("global_test_dof")
+    if limit and limit[1]:
+        lim, lim_text = limit[0] / limit[1], "stored limit"
+    elif dof and dof[1]:
+        # chi-square test at alpha = 0.05 (the reconciliation's default), Narasimhan & Jordache (2000), ch. 7
+        lim, lim_text = float(chi2.ppf(0.95, dof[0] / dof[1])), "95 % chi-square quantile at the mean dof"
+    else:
+        lim, lim_text = np.nan, ""
+    m = st.columns(2)
+    m[0].metric("Largest global-test statistic in range [-]", fmt(hi, ".3g"),
+                delta=None if not np.isfinite(lim) else f"limit {lim:.3g}", delta_color="off")
+    alarm = data["stats"].get("global_test_alarm")
+    m[1].metric("Intervals rejected by the global test", fmt(alarm[0] if alarm else np.nan, ".0f"))
     if stat is not None:
         st.altair_chart(trend_chart({"global test": stat}, unit="-", y_title="chi-square statistic",
                                     colours={"global test": ui.COLOURS["measured"]}, hlines={"limit": lim},
                                     envelope=data["bucketed"]), key="ch_gt")
+        if lim_text:
+            st.caption(f"Dashed: {lim_text}.")
 else:
     ui.not_available("Global-test statistic")
 
 st.subheader("Reconciliation adjustments")
 if adjustments:
-    tags = [v.split(":", 1)[1] for v in adjustments]
-    chosen = st.multiselect("Tags", tags, default=tags[:2], key="bal_tags")
+    by_name = {v.split(":", 1)[1]: v for v in adjustments}
+    tags = list(by_name)
+    chosen = st.multiselect("Measurements", tags, default=tags[:2], key="bal_tags")
     if chosen:
-        data = cached.chart_series(url, unit, tuple(f"adjustment:{t}" for t in chosen), start, end)
-        lines = {t: data[f"adjustment:{t}"] for t in chosen if f"adjustment:{t}" in data}
-        st.altair_chart(trend_chart(lines, unit="", y_title="adjustment (reconciled - measured)",
+        data = cached.chart_series(url, unit, tuple(by_name[t] for t in chosen), start, end)
+        lines = {t: data[by_name[t]] for t in chosen if by_name[t] in data}
+        z = all(by_name[t].startswith("adjust_z:") for t in chosen)
+        st.altair_chart(trend_chart(lines, unit="", y_title="standardised adjustment" if z else "adjustment",
                                     colours=dict(zip(lines, palette)), envelope=data["bucketed"]), key="ch_adj")
-        rms = {t: data["stats"][f"adjustment:{t}"] for t in chosen if f"adjustment:{t}" in data["stats"]}
+        means = {t: data["stats"][by_name[t]] for t in chosen if by_name[t] in data["stats"]}
         st.caption("Mean adjustment in range: " + "; ".join(
-            f"{t} {fmt(s / n if n else np.nan, '.3g', units_of.get('adjustment:' + t, ''))}"
-            for t, (s, n, _, _) in rms.items()))
+            f"{t} {fmt(s / n if n else np.nan, '.3g', units_of.get(by_name[t], ''))}"
+            for t, (s, n, _, _) in means.items()))
     else:
         st.caption("Pick one or more tags.")
 else:
@@ -70,7 +84,12 @@ else:
 
 st.subheader("Flagged sensors")
 alarms = cached.alarms(url, unit)
-sensor = alarms[~alarms["variable"].isin(units_of.keys())] if len(alarms) else alarms
+tags = set(cached.quality(url, unit)["tag"])
+if len(alarms):   # alarms on a sensor: a sensor kind, or a variable that is one of the unit's tags
+    on_tag = alarms["variable"].map(lambda v: any(t in tags for t in str(v).split(", ")))
+    sensor = alarms[alarms["kind"].str.contains("sensor|bias") | on_tag]
+else:
+    sensor = alarms
 if len(sensor):
     st.metric("Open sensor alarms", str(int((sensor["state"] == "open").sum())))
     view = pd.DataFrame({

@@ -36,7 +36,7 @@ else:
 
 st.subheader("Arrhenius plot from steady windows")
 cat = cached.catalog(url, unit)
-rxns = sorted(v.split(":", 1)[1] for v in cat["variable"] if v.startswith("k_apparent:"))
+rxns = sorted(v.split(":", 1)[1] for v in cat["variable"] if v.startswith("k_apparent:") and not v.endswith("_measured"))
 if not rxns:
     ui.not_available("Apparent rate constants")
 else:
@@ -56,7 +56,8 @@ else:
         line_x = np.array([pts["inv_t"].min(), pts["inv_t"].max()])
         plot = pts.reset_index()[["ts", "inv_t", "ln_k", "temperature"]].assign(
             t_c=lambda d: d["temperature"] - 273.15, inv_t_k=lambda d: 1000 * d["inv_t"])
-        pts_chart = alt.Chart(plot).mark_circle(size=28, color=ui.COLOURS["measured"], opacity=0.7).encode(
+        pts_chart = alt.Chart(plot).mark_circle(size=28, opacity=0.8).encode(
+            color=alt.Color("ts:T", title="time", scale=alt.Scale(range=["#b8d4e0", ui.COLOURS["measured"]])),
             x=alt.X("inv_t_k:Q", title="1000 / T [1/K]", scale=alt.Scale(zero=False)),
             y=alt.Y("ln_k:Q", title=f"ln k_apparent ({rxn})", scale=alt.Scale(zero=False)),
             tooltip=[alt.Tooltip("ts:T", title="bucket start"), alt.Tooltip("t_c:Q", title="T [degC]", format=".2f"),
@@ -66,7 +67,8 @@ else:
         st.altair_chart((pts_chart + guide).properties(height=300), key="ch_arrh")
         st.caption(f"Each point: mean over a time bucket in which every result row was steady. Dashed: "
                    f"least-squares guide through the points (Ea about {fmt(ea / 1000, '.1f')} kJ/mol); "
-                   "the fitted parameters above come from the store.")
+                   "the fitted parameters above come from the store. Colour: time; over a long range catalyst "
+                   "decay moves k too, so a short range shows the temperature effect best.")
 
 st.subheader("Rate-law comparison")
 if len(params) and params["method"].nunique() > 1:

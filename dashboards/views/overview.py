@@ -5,7 +5,7 @@ import pandas as pd
 import streamlit as st
 
 from kinedash import cached, ui
-from kinedash.display import fmt
+from kinedash.display import fmt, quality_kinds
 
 st.title("Plant at a glance")
 url = ui.store_url()
@@ -51,18 +51,22 @@ for i, unit in enumerate(units):
         f = forecasts[forecasts["unit_id"] == unit]
         if len(f):
             row = f.iloc[-1]
-            st.metric(f"{unit} expected first day below target", ui.day_text(row["miss_expected"]))
-            st.caption(f"interval {ui.day_text(row['miss_earliest'])} to {ui.day_text(row['miss_latest'])}; "
-                       f"{row['statement']}")
+            miss = ui.day_text(row["miss_expected"]) if pd.notna(row["miss_expected"]) else "none in horizon"
+            st.metric(f"{unit} expected first day below target", miss)
+            span = (f"interval {ui.day_text(row['miss_earliest'])} to {ui.day_text(row['miss_latest'])}; "
+                    if pd.notna(row["miss_earliest"]) else "")
+            st.caption(span + str(row["statement"]))
         else:
             ui.not_available("Forecast")
         n_open = int((open_alarms["unit_id"] == unit).sum())
         q = quality[quality["unit_id"] == unit]
         if len(q):
             latest = q[q["period_start"] == q["period_start"].max()]
+            kinds = quality_kinds(latest["measure"])
             good = latest.loc[latest["measure"] == "good", "count"].sum()
-            total = latest["count"][~latest["measure"].str.contains("gap")].sum()
-            share = 100.0 * good / total if total else np.nan
+            read = latest.loc[latest["measure"] == "rows_read", "count"].sum() \
+                if (latest["measure"] == "rows_read").any() else good + latest.loc[kinds == "rule", "count"].sum()
+            share = 100.0 * good / read if read else np.nan
         else:
             share = np.nan
         c1, c2 = st.columns(2)

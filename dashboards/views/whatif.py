@@ -34,8 +34,9 @@ if np.isfinite(prop) and not inside:
 st.caption(f"As of {ui.day_text(r['as_of'])}. {r['note']}")
 marks = pd.DataFrame({"what": ["current"] + (["proposed"] if np.isfinite(p) else []),
                       "value": [cur] + ([p] if np.isfinite(p) else [])})
+pad = 0.05 * (hi - lo) if hi > lo else 0.01 * max(abs(hi), 1.0)
 rng = alt.Chart(pd.DataFrame({"lo": [lo], "hi": [hi]})).mark_bar(height=18, color="#dcedc8").encode(
-    x=alt.X("lo:Q", title=f"{lever} [{u}]", scale=alt.Scale(domain=[lo - 0.05 * (hi - lo), hi + 0.05 * (hi - lo)])),
+    x=alt.X("lo:Q", title=f"{lever} [{u}]", scale=alt.Scale(domain=[lo - pad, hi + pad])),
     x2="hi:Q")
 pts = alt.Chart(marks).mark_tick(thickness=3, size=30).encode(
     x="value:Q", color=alt.Color("what:N", title=None, scale=alt.Scale(domain=["current", "proposed"],

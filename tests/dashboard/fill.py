@@ -54,7 +54,16 @@ def unit_series(unit: str, start, end, freq: str = "1h", *, seed: int = 0, recon
         "activity_band_high": np.exp(-kd * days) + 0.03,
     }, index=idx)
     frame["steady"] = (np.sin(2 * np.pi * days / 2.0) > -0.3).astype(float) if steady else np.zeros(n)
-    if reconciliation:
+    if reconciliation and unit == "R-210":     # the names the pipeline writes
+        frame["closure:MA"] = 0.002 * rng.standard_normal(n)
+        frame["closure:volume"] = 0.001 * rng.standard_normal(n)
+        frame["global_test"] = rng.chisquare(3, n)
+        frame["global_test_dof"] = np.full(n, 3.0)
+        frame["global_test_alarm"] = (frame["global_test"] > 7.815).astype(float)
+        frame["adjust_z:feed_flow"] = rng.standard_normal(n)
+        frame["adjust_z:outlet_flow"] = rng.standard_normal(n)
+        frame[f"k_ref:{rxn}_measured"] = k_ref * 1.01
+    elif reconciliation:                       # the other names the dashboard accepts
         frame["closure:total_mass"] = 0.002 * rng.standard_normal(n)
         frame["global_test"] = rng.chisquare(3, n)
         frame["global_test_limit"] = np.full(n, 7.81)
@@ -117,7 +126,7 @@ def fill_store(url: str, start="2026-09-01T00:00Z", end="2026-12-01T00:00Z", fre
                                statement=f"at the present decline {unit} falls below target in 30-47 days")
             tag = unit.replace("-", "")
             run.write_alarms(unit, pd.DataFrame([
-                {"kind": "bias", "variable": f"{tag}-FT-101", "onset": last - pd.Timedelta(days=6),
+                {"kind": "sensor_bias" if unit == "R-210" else "bias", "variable": f"{tag}-FT-101", "onset": last - pd.Timedelta(days=6),
                  "detected": last - pd.Timedelta(days=5), "magnitude": 0.042, "magnitude_unit": "m3/h",
                  "evidence": "CUSUM of the flow adjustment crossed h = 5", "state": "open", "closed": None},
                 {"kind": "drift", "variable": "activity", "onset": last - pd.Timedelta(days=20),
@@ -125,8 +134,9 @@ def fill_store(url: str, start="2026-09-01T00:00Z", end="2026-12-01T00:00Z", fre
                  "evidence": "EWMA of activity below its lower limit", "state": "closed",
                  "closed": last - pd.Timedelta(days=10)},
             ]))
-            q = pd.DataFrame({"good": [2150, 2180, 2100], "bad_quality_code": [12 + i, 0, 3],
-                              "out_of_range": [0, 4, 1], "frozen": [0, 0, 30 + i], "gap_hours": [0, 2, 5]},
+            q = pd.DataFrame({"rows_read": [2162 + i, 2184, 2134 + i], "good": [2150, 2180, 2100],
+                              "bad_quality_code": [12 + i, 0, 3], "out_of_range": [0, 4, 1], "frozen": [0, 0, 30 + i],
+                              "intervals": [24, 24, 24], "missing_intervals": [0, 2, 5]},
                              index=pd.Index([f"{tag}-FT-101", f"{tag}-TT-101", f"{tag}-AT-105"], name="tag"))
             run.write_quality(unit, q, period_start=end - pd.Timedelta(days=1), period_end=end)
             q2 = q.copy()

@@ -64,10 +64,15 @@ def test_unit_page_range_and_unit_change_numbers(monkeypatch, hourly_url):
         at.selectbox(key="kt_unit").set_value(unit).run()
         at.radio(key="kt_range").set_value(rng).run()
         assert not at.exception
-        f = store.series(unit, ["conversion", "activity"], END - pd.Timedelta(hours=1) - pd.Timedelta(days=days)
-                         + pd.Timedelta("1us"), END)
+        f = store.series(unit, ["conversion", "activity", "steady"], END - pd.Timedelta(hours=1)
+                         - pd.Timedelta(days=days) + pd.Timedelta("1us"), END)
         assert metric(at, "Mean conversion") == f"{f['conversion'].mean():.4f}", (unit, rng)
-        assert metric(at, "Mean catalyst activity") == f"{f['activity'].mean():.4f}"
+        steady_mean = f.loc[f["steady"] == 1, "activity"].mean()
+        assert metric(at, "Mean catalyst activity") == f"{steady_mean:.4f}"          # steady rows only
+        at.toggle(key="trend_steady_only").set_value(False).run()
+        assert metric(at, "Mean catalyst activity") == f"{f['activity'].mean():.4f}"  # every row
+        assert f["activity"].mean() != steady_mean
+        at.toggle(key="trend_steady_only").set_value(True).run()
     charts = at.get("vega_lite_chart")
     assert len(charts) == 4 and all(0 < chart_rows(c) <= 5000 for c in charts)
 
@@ -92,9 +97,16 @@ def test_balances_numbers_and_tag_picker(monkeypatch, hourly_url):
     assert metric(at, "Largest global-test") == f"{gt.max():.3g}"
     assert metric(at, "Open sensor alarms") == "1"
     before = [c.value for c in at.caption if c.value.startswith("Mean adjustment")]
-    at.multiselect(key="bal_tags").set_value(["R210-TT-101"]).run()
+    at.multiselect(key="bal_tags").set_value(["outlet_flow"]).run()
     after = [c.value for c in at.caption if c.value.startswith("Mean adjustment")]
-    assert before != after and "R210-FT-101" not in after[0]
+    assert before != after and "feed_flow" not in after[0] and "outlet_flow" in after[0]
+    rejected = store.series("R-210", ["global_test_alarm"], END - pd.Timedelta(days=7) - pd.Timedelta(hours=1)
+                            + pd.Timedelta("1us"), END)["global_test_alarm"].sum()
+    assert metric(at, "Intervals rejected") == f"{rejected:.0f}"
+    # limit drawn at the chi-square 95 % quantile of 3 dof: 7.815 (Abramowitz & Stegun 1964, table 26.8)
+    assert "limit 7.81" in [m for m in at.metric if "Largest global-test" in m.label][0].delta
+    at.selectbox(key="kt_unit").set_value("R-220").run()                # the other accepted names
+    assert metric(at, "Open sensor alarms") == "1" and not at.exception
 
 
 def test_kinetics_numbers_and_range(monkeypatch, hourly_url):
@@ -115,11 +127,15 @@ def test_quality_numbers_and_period(monkeypatch, hourly_url):
     store = open_store(hourly_url, create=False)
     q = store.quality("R-210")
     at = app(monkeypatch, hourly_url, "quality")
-    newest = q[(q["period_start"] == q["period_start"].max()) & ~q["measure"].str.contains("gap")]
-    assert metric(at, "Readings flagged") == str(newest.loc[newest["measure"] != "good", "count"].sum())
-    older = q[(q["period_start"] == q["period_start"].min()) & ~q["measure"].str.contains("gap")]
+    rules = ~q["measure"].isin(["rows_read", "good", "intervals", "missing_intervals"])
+    newest = q[(q["period_start"] == q["period_start"].max())]
+    assert metric(at, "Readings flagged") == str(newest.loc[rules, "count"].sum())
+    assert metric(at, "Readings screened") == str(newest.loc[newest["measure"] == "rows_read", "count"].sum())
+    older = q[(q["period_start"] == q["period_start"].min())]
     at.selectbox(key="dq_period").set_value(q["period_start"].min().strftime("%Y-%m-%d %H:%M")).run()
-    assert metric(at, "Readings flagged") == str(older.loc[older["measure"] != "good", "count"].sum())
+    assert metric(at, "Readings flagged") == str(older.loc[rules, "count"].sum())
+    gaps = [d.value for d in at.dataframe][-1]
+    assert gaps.loc["R210-AT-105", "missing_intervals"] == 5
 
 
 def test_whatif_cautions_limits_and_lever(monkeypatch, hourly_url):

@@ -111,3 +111,23 @@ def test_store_url_from_config_and_environment(tmp_path):
         == "sqlite:////x.sqlite"
     with pytest.raises(StoreUnavailable, match="plant configuration"):
         resolve_store_url({"KINETRACE_CONFIG": str(tmp_path / "missing.toml")})
+
+
+def test_steady_only_in_both_reads(minute_url):
+    store = open_store(minute_url, create=False)
+    for days in (7, 15):                                     # 7 days: samples; 15 days: buckets
+        start = END - pd.Timedelta(days=days)
+        out = chart_series(store, "R-210", ["activity", "conversion"], start, END, points=500,
+                           steady_only=["activity"])
+        raw = store.series("R-210", ["activity", "steady"], start, END)
+        assert "steady" not in out and "steady" not in out["stats"]
+        s, n, lo, hi = out["stats"]["activity"]
+        if not out["bucketed"]:
+            ref = raw.loc[raw["steady"] == 1, "activity"]
+        else:                                                # pandas: rows of the buckets wholly steady
+            width = -(-((END - start) // pd.Timedelta(microseconds=1)) // 500)
+            b = ((raw.index - start) // pd.Timedelta(microseconds=1)).to_numpy() // width
+            whole = raw["steady"].groupby(b).transform("min") >= 1
+            ref = raw.loc[whole.to_numpy(), "activity"]
+        assert (out["bucketed"], n) == (days == 15, ref.size) and s == pytest.approx(ref.sum(), rel=1e-12)
+        assert lo == ref.min() and hi == ref.max()
