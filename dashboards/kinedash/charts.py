@@ -53,7 +53,8 @@ def trend_chart(lines: dict[str, pd.DataFrame], *, unit: str, y_title: str, colo
     """
     _, shown = to_display(1.0, unit)
     data = _long(lines, unit)
-    domain = list(colours)
+    shown_labels = set(lines) | ({band[2]} if band is not None and len(band[0]) else set())
+    domain = [k for k in colours if k in shown_labels] or list(colours)
     scale = alt.Scale(domain=domain, range=[colours[k] for k in domain])
     x = alt.X("ts:T", title="time (UTC)")
     y_title = f"{y_title} [{shown}]" if shown and shown != "-" else y_title
