@@ -36,6 +36,8 @@ from .unitdata import UnitData, check_unit_data
 
 #: Fates whose presence in an interval marks that interval not valid.
 TAINTING = (BAD_QUALITY, BAD_VALUE, CONFLICT, OUT_OF_RANGE, SPIKE, FROZEN)
+#: Largest share of flagged readings an interval may hold and still count as valid. [-]
+MAX_FLAGGED_SHARE = 0.25
 _DAY = 86_400 * 10**9
 
 
@@ -237,7 +239,11 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
             v, carried = align.sample_mean_carry(tg, xg, edges, t.max_age)
         del tg, xg
         taint_mask = np.isin(fate, TAINTING)
-        tainted = align.count_per_interval(ts[taint_mask] - shift, edges) > 0
+        # an interval is tainted when flagged readings make up more than MAX_FLAGGED_SHARE of its
+        # readings: one bad row among sixty leaves a good mean of the other fifty-nine
+        n_flag = align.count_per_interval(ts[taint_mask] - shift, edges)
+        n_all = align.count_per_interval(ts - shift, edges)
+        tainted = n_flag > MAX_FLAGGED_SHARE * np.maximum(n_all, 1)
         values[:, i] = v
         valid[:, i] = ok = ~np.isnan(v) & ~tainted
         fc = np.bincount(fate, minlength=N_FATES)

@@ -46,7 +46,7 @@ COLUMNS: dict[str, str] = {
     "yield": "-", "selectivity": "-",
     "rate": "mol/(m3 s)", "k_apparent": "SI, (mol/m3)^(1-n)/s", "k_ref": "SI, (mol/m3)^(1-n)/s",
     "activity": "-", "production": "mol/s", "production_mass": "kg/s", "target_mass": "kg/s",
-    "production_ratio": "-", "steady": "bool", "rate_basis": "text",
+    "production_ratio": "-", "steady": "bool", "rate_basis": "text", "running": "-",
 }
 
 
@@ -117,6 +117,9 @@ def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumula
     with np.errstate(invalid="ignore", divide="ignore"):
         acc = np.abs(dca + ca.to_numpy() / vol.to_numpy() * dv) / np.abs(np.asarray(key_rate, dtype=float))
     good = inputs_steady & (acc <= max_accumulation)
+    # the variance-ratio test is causal and lags the start of a transient: looking back over the
+    # record, a row counts as steady only when its neighbours do too (erosion by one row)
+    good = good & np.concatenate([[False], good[:-1]]) & np.concatenate([good[1:], [False]])
     runs = steady_windows(pd.Series(good, index=idx), min_duration=min_duration)
     mask = np.zeros(len(idx), dtype=bool)
     for start, stop in zip(runs["start_pos"], runs["stop_pos"]):
@@ -190,6 +193,10 @@ def back_calculate(roles: pd.DataFrame, model: UnitModel, *, fresh_k_ref: dict[s
     if steady is None:
         steady = steady_mask(roles, model, out["key_rate"].to_numpy())
     out["steady"] = steady.reindex(roles.index, fill_value=False).to_numpy(dtype=bool)
+    # rate constants mean nothing while the unit is (nearly) stopped or where the conversion is
+    # outside (0, 1): there they are left out (NaN), not reported as numbers
+    running = (q_in >= 0.5 * model.feed_flow_limits[0]) & (x > 0) & (x < 1)
+    out["running"] = running.astype(float)
     fresh_basis: dict[str, str] = {}
     fresh_k_ref = dict(fresh_k_ref or {})
     for j, rid in enumerate(model.reaction_ids):
@@ -198,6 +205,7 @@ def back_calculate(roles: pd.DataFrame, model: UnitModel, *, fresh_k_ref: dict[s
         if law is None:
             continue
         k_app = ratelaws.apparent_rate_constant(law.method, rates[:, j], conc, temperature=temp, **law.params)
+        k_app = np.where(running, k_app, np.nan)
         k_ref = arrhenius.normalise_to_reference(k_app, temp, law.activation_energy, law.reference_temperature)
         out[f"k_apparent:{rid}"] = k_app
         out[f"k_ref:{rid}"] = k_ref
