@@ -127,3 +127,11 @@ def test_grid_edges_of_a_long_period_keep_the_last_interval():
     last = int(pd.Timestamp("2026-12-31T23:59Z").value)
     e = grid_edges(first, last, 60)
     assert len(e) - 1 == 365 * 1440 and e[-1] == last + 60 * S
+
+
+def test_a_flow_at_zero_during_a_shutdown_is_not_frozen():
+    t = np.arange(300) * 60 * S
+    x = np.r_[np.full(100, 4.0) + np.arange(100) * 1e-3, np.zeros(100), np.full(100, 4.0)]   # 100 min at 0
+    f = screen(t, x, np.zeros(300, np.int8), valid_range=(0.0, 12.0), frozen_after=1800.0)
+    assert (f[100:200] == GOOD).all()
+    assert (f[201:300] == FROZEN).all() and f[200] == GOOD    # 4.0 flat for 99 min after the restart

@@ -37,7 +37,7 @@ from .unitdata import UnitData, check_unit_data
 #: Fates whose presence in an interval marks that interval not valid.
 TAINTING = (BAD_QUALITY, BAD_VALUE, CONFLICT, OUT_OF_RANGE, SPIKE, FROZEN)
 #: Largest share of flagged readings an interval may hold and still count as valid. [-]
-MAX_FLAGGED_SHARE = 0.25
+MAX_FLAGGED_SHARE = 0.5
 _DAY = 86_400 * 10**9
 
 

@@ -11,7 +11,8 @@ Rules, in this order, each only on readings still good after the ones before:
    is a one-reading excursion and gets ``spike``; a step that stays is kept.
 4. **Frozen.** A run of identical consecutive values lasting at least
    ``frozen_after`` seconds is a flat-lined transmitter: every reading of the
-   run after its first gets ``frozen``.
+   run after its first gets ``frozen`` - unless the run sits at the low end of
+   the range (a flow at its low-flow cut-off while the unit is down).
 
 Gaps are not a fate of a reading; they show up as missing grid intervals in
 alignment (:mod:`kinetrace.ingest.align`).
@@ -132,7 +133,7 @@ def flag_spikes(ts: np.ndarray, value: np.ndarray, fate: np.ndarray, max_rate: f
 
 
 def flag_frozen(ts: np.ndarray, value: np.ndarray, fate: np.ndarray, frozen_after: float | None,
-                min_readings: int = 3) -> np.ndarray:
+                min_readings: int = 3, floor: float | None = None) -> np.ndarray:
     """Fates after the flat-line rule.
 
     Parameters
@@ -146,10 +147,15 @@ def flag_frozen(ts: np.ndarray, value: np.ndarray, fate: np.ndarray, frozen_afte
         Shortest duration of a run of identical values that counts as frozen. [s]
     min_readings : int
         Fewest readings in such a run (sparse readings of a steady value are not a flat line).
+    floor : float, optional
+        Runs at or below this value are not frozen: a flow at its low-flow cut-off (0 while
+        the unit is down) or an analyzer at its zero is a real flat line. [tag unit]
 
     >>> t = np.arange(6) * 3_600_000_000_000   # hourly
     >>> flag_frozen(t, np.array([1., 2., 2., 2., 2., 3.]), np.zeros(6, np.int8), 7200.0).tolist()
     [0, 0, 10, 10, 10, 0]
+    >>> flag_frozen(t, np.array([1., 0., 0., 0., 0., 3.]), np.zeros(6, np.int8), 7200.0, floor=0.0).tolist()
+    [0, 0, 0, 0, 0, 0]
     """
     if frozen_after is None:
         return fate
@@ -168,6 +174,8 @@ def flag_frozen(ts: np.ndarray, value: np.ndarray, fate: np.ndarray, frozen_afte
     length = last - first + 1
     span = (t[last] - t[first]) / 1e9
     run_frozen = (length >= min_readings) & (span >= frozen_after)
+    if floor is not None:
+        run_frozen &= v[first] > floor
     mark = run_frozen[gid] & ~start
     fate[g[mark]] = FROZEN
     return fate
@@ -176,6 +184,8 @@ def flag_frozen(ts: np.ndarray, value: np.ndarray, fate: np.ndarray, frozen_afte
 def screen(ts, value, fate, *, valid_range=None, max_rate=None, frozen_after=None):
     """All screening rules on one tag's (sorted) readings; returns the new fates.
 
+    The flat-line rule spares runs at the low end of ``valid_range`` (or at 0 without one).
+
     >>> t = np.arange(4) * 60_000_000_000
     >>> screen(t, np.array([1., 50., 1., 1.]), np.zeros(4, np.int8), valid_range=(0, 10)).tolist()
     [0, 8, 0, 0]
@@ -183,4 +193,5 @@ def screen(ts, value, fate, *, valid_range=None, max_rate=None, frozen_after=Non
     fate = flag_duplicates(ts, value, fate)
     fate = flag_range(value, fate, valid_range)
     fate = flag_spikes(ts, value, fate, max_rate)
-    return flag_frozen(ts, value, fate, frozen_after)
+    floor = valid_range[0] if valid_range is not None else 0.0
+    return flag_frozen(ts, value, fate, frozen_after, floor=floor)

@@ -8,6 +8,12 @@ arrive in partitions of ``source.chunk_rows`` (server-side cursor where the
 driver has one), so memory stays bounded. On PostgreSQL (psycopg 3) the rows
 are streamed with ``COPY (SELECT ...) TO STDOUT`` and parsed as CSV.
 
+Rows are taken in the order the database returns them (no ORDER BY, which would
+cost a sort of the whole window): ``out_of_order`` then counts arrival order,
+and the repeated-hour ``"infer"`` policy for naive local times relies on it, so
+a historian storing local time should give ``query`` with an ORDER BY on its
+insertion id. SQLite's bulk path reads in rowid (insertion) order.
+
 The connection URL of ``kind = "sql"`` comes from the environment variable
 ``source.url_env``; it is never written to messages or logs (only the
 variable's name and the database dialect are).

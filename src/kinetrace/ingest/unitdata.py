@@ -6,7 +6,7 @@ Schema (checked once by :func:`check_unit_data`; later stages trust it):
   ``"timestamp"`` (interval starts), one float column per configured tag in SI
   (m^3/s, mol/m^3, K, level as a fraction of span);
 * ``valid``: bool DataFrame of the same shape, False where the value is NaN or
-  flagged readings make up more than a quarter (``MAX_FLAGGED_SHARE``) of its readings of that tag;
+  flagged readings make up more than half (``MAX_FLAGGED_SHARE``) of its readings of that tag;
 * ``quality``: per-tag summary (rows = tags) of every reading's fate and of the
   grid intervals;
 * ``roles``: ``(role, species or None) -> [tag, ...]``;
