@@ -117,18 +117,27 @@ class PgCluster:
             shutil.rmtree(self.tmp, ignore_errors=True)
 
 
-@pytest.fixture(scope="session")
-def pg_url():
-    """SQLAlchemy URL of a throwaway PostgreSQL server, running for the whole test session."""
+def start_cluster() -> PgCluster:
+    """Start a throwaway cluster; RuntimeError (naming ``make test``) if the binaries are missing."""
     bindir = find_bindir()
     if bindir is None:
-        pytest.fail(_INSTALL_HINT, pytrace=False)
+        raise RuntimeError(_INSTALL_HINT)
     cluster = PgCluster(bindir)
     try:
         cluster.start()
-    except Exception as exc:  # noqa: BLE001 - report any start failure as a test failure, with the log
+    except Exception as exc:  # noqa: BLE001 - any start failure: clean up, report with the server log
         cluster.stop()
-        pytest.fail(f"could not start the test PostgreSQL server: {exc}", pytrace=False)
+        raise RuntimeError(f"could not start the test PostgreSQL server: {exc}") from exc
+    return cluster
+
+
+@pytest.fixture(scope="session")
+def pg_url():
+    """SQLAlchemy URL of a throwaway PostgreSQL server, running for the whole test session."""
+    try:
+        cluster = start_cluster()
+    except RuntimeError as exc:
+        pytest.fail(str(exc), pytrace=False)
     try:
         yield cluster.url
     finally:
