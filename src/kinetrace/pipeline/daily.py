@@ -58,6 +58,10 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     return result
 
 
+#: In-control average run length of the drift charts. [observations, here hours]
+DRIFT_ARL0 = 2000.0
+
+
 def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame):
     """The monitoring stage (catalyst trend, drift alarms, production, forecast, what-if) of one unit."""
     from ..monitor import assess_unit, volume_limits_from_level
@@ -69,8 +73,15 @@ def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame):
     elif model.fixed_volume is not None:
         vol_limits = (model.fixed_volume, model.fixed_volume)
     try:
-        return assess_unit(series, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
-                           volume_limits=vol_limits)
+        # drift charts run on hourly values: an in-control ARL of 2000 observations is about one
+        # false alarm per chart and direction per quarter (370, the textbook value, would be one
+        # every fortnight, too many for a morning check)
+        # activity is only read where the design equation holds (steady rows); elsewhere it is left
+        # out of the trend and the charts, while production still counts every hour
+        monitored = series.copy()
+        monitored.loc[~monitored["steady"].astype(bool), "activity"] = np.nan
+        return assess_unit(monitored, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
+                           volume_limits=vol_limits, arl0=DRIFT_ARL0)
     except KinetraceError as exc:
         log.warning("unit %s: monitoring stage skipped: %s", model.id, exc)
         return None
