@@ -58,3 +58,35 @@ def test_random_csv_never_crashes(tmp_path_factory, header, lines, gz, tz, noise
         return
     q = d.quality
     assert (q[fate_names()].sum(axis=1) == q["rows_read"]).all()
+
+
+cells = st.one_of(st.none(), st.floats(allow_nan=True, allow_infinity=True), st.integers(-2**62, 2**62),
+                  st.text(max_size=8), st.binary(max_size=4), st.sampled_from(["OK", "BAD", "2026-09-01T00:00:00Z"]))
+
+
+@settings(max_examples=int(os.environ.get("KT_FUZZ_EXAMPLES", "40")), deadline=None,
+          suppress_health_check=[HealthCheck.function_scoped_fixture])
+@given(rows=st.lists(st.tuples(st.one_of(stamps, cells), st.sampled_from(TAGS), st.one_of(values, cells), cells),
+                     max_size=30), bulk=st.booleans())
+def test_random_sqlite_rows_never_crash(tmp_path_factory, rows, bulk):
+    import sqlite3
+
+    from kinetrace.ingest import sql_source
+
+    tmp = tmp_path_factory.mktemp("fuzzdb")
+    con = sqlite3.connect(tmp / "h.sqlite")
+    con.execute("CREATE TABLE readings (timestamp TEXT, tag TEXT, value REAL, quality TEXT)")
+    con.executemany("INSERT INTO readings VALUES (?,?,?,?)", rows)
+    con.commit()
+    con.close()
+    cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"]}, grid="10 min")
+    old = sql_source.USE_SQLITE_BULK
+    sql_source.USE_SQLITE_BULK = bulk
+    try:
+        d = read_unit(cfg, "R-220", config_path=tmp / "plant.toml")
+    except KinetraceError:
+        return
+    finally:
+        sql_source.USE_SQLITE_BULK = old
+    q = d.quality
+    assert (q[fate_names()].sum(axis=1) == q["rows_read"]).all()

@@ -45,9 +45,27 @@ AMBIGUOUS_POLICIES = ("infer", "daylight", "standard", "flag")
 MISSING_POLICIES = ("flag", "shift")
 
 
+def _to_ns(texts: pd.Series, utc: bool) -> np.ndarray:
+    """ISO 8601 texts -> int64 [ns], NAT where unreadable or outside the ns range (years 1678-2261)."""
+    try:
+        dt = pd.to_datetime(texts, format="ISO8601", utc=utc, errors="coerce")
+        return pd.DatetimeIndex(dt).as_unit("ns").asi8
+    except (OverflowError, ValueError, pd.errors.OutOfBoundsDatetime):
+        return np.array([_to_ns(pd.Series([t], dtype=object), utc)[0] if _one_ok(t, utc) else NAT for t in texts],
+                        dtype=np.int64)
+
+
+def _one_ok(text, utc: bool) -> bool:
+    try:
+        pd.DatetimeIndex(pd.to_datetime(pd.Series([text], dtype=object), format="ISO8601", utc=utc,
+                                        errors="coerce")).as_unit("ns")
+        return True
+    except (OverflowError, ValueError, pd.errors.OutOfBoundsDatetime):
+        return False
+
+
 def _naive_ns(texts: pd.Series) -> np.ndarray:
-    dt = pd.to_datetime(texts, format="ISO8601", errors="coerce")
-    return pd.DatetimeIndex(dt).as_unit("ns").asi8
+    return _to_ns(texts, utc=False)
 
 
 def parse_timestamps(texts, timezone: str | None = None, *, dst_ambiguous: str = "infer",
@@ -92,8 +110,7 @@ def parse_timestamps(texts, timezone: str | None = None, *, dst_ambiguous: str =
     status = np.full(n, BAD_TIME, dtype=np.int8)
     has_off = s.map(lambda v: bool(v) and _OFFSET.search(v) is not None).to_numpy(dtype=bool)
     if has_off.any():
-        dt = pd.to_datetime(s[has_off], format="ISO8601", utc=True, errors="coerce")
-        ns = pd.DatetimeIndex(dt).as_unit("ns").asi8
+        ns = _to_ns(s[has_off], utc=True)
         ok = ns != NAT
         idx = np.flatnonzero(has_off)
         utc[idx[ok]] = ns[ok]
@@ -103,7 +120,9 @@ def parse_timestamps(texts, timezone: str | None = None, *, dst_ambiguous: str =
     if naive.any() and timezone:
         idx = np.flatnonzero(naive)
         wall = _naive_ns(s[naive])
-        parsed = wall != NAT
+        day = np.int64(86_400_000_000_000)
+        # a day inside the ns range on both sides, so that adding a zone offset cannot overflow
+        parsed = (wall != NAT) & (wall > np.iinfo(np.int64).min + 2 * day) & (wall < np.iinfo(np.int64).max - 2 * day)
         idx, wall = idx[parsed], wall[parsed]
         w = pd.DatetimeIndex(wall.astype("datetime64[ns]"))
         first = w.tz_localize(timezone, ambiguous=np.ones(len(w), bool), nonexistent="NaT").asi8
