@@ -17,6 +17,7 @@ import pandas as pd
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError, KinetraceError
 from .backcalc import back_calculate
+from .kinetics_step import fit_history, k_ref_band
 from .reconciliation import reconcile_unit
 from .roles import role_frame
 
@@ -34,6 +35,8 @@ class UnitResult:
     summary: dict = field(default_factory=dict)
     faults: list = field(default_factory=list)     # SensorFault records from reconciliation
     assessment: object = None                       # kinetrace.monitor.UnitAssessment, or None
+    kinetic_parameters: pd.DataFrame = field(default_factory=pd.DataFrame)   # fitted rate law, store rows
+    rate_law_comparison: object = None              # kinetrace.kinetics.estimation.ModelComparison
 
 
 def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, until=None) -> UnitResult:
@@ -49,9 +52,22 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     series = series.join(measured[[c for c in MEASURED_COLUMNS if c in measured]
                                   + [c for c in measured if c.startswith("k_ref:")]].add_suffix("_measured"))
     series = series.join(rec.frame)
+    series = series.join(k_ref_band(series, model, rec.roles))
     series.attrs.update(attrs)
     result = UnitResult(model, series, roles, data.quality, {}, faults=rec.faults)
     result.assessment = _assess(cfg, model, series)
+    trend = None
+    if result.assessment is not None and result.assessment.trend is not None:
+        fitted = result.assessment.trend.predict(series.index)
+        fitted.loc[fitted.index < result.assessment.trend.run_start] = np.nan
+        series["activity_fit"] = fitted["activity"].to_numpy()
+        series["activity_band_low"] = fitted["lower"].to_numpy()
+        series["activity_band_high"] = fitted["upper"].to_numpy()
+        trend = series["activity_fit"]
+    result.kinetic_parameters, result.rate_law_comparison, problems = fit_history(series, model, trend)
+    for p in problems:
+        log.info("unit %s: rate-law fit: %s", model.id, p)
+    result.series = series
     result.summary = summarise(series, model, faults=rec.faults)
     if result.assessment is not None:
         result.summary.update(_assessment_summary(result.assessment))
@@ -204,7 +220,8 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
                 daily = daily[[first_day <= d <= last_day for d in daily.index]]
                 if len(daily):
                     run.write_daily(uid, daily)
-                params = a.parameter_rows()
+                params = pd.concat([a.parameter_rows(), res.kinetic_parameters], ignore_index=True) \
+                    if len(res.kinetic_parameters) else a.parameter_rows()
                 if len(params):
                     run.write_parameters(uid, params)
                 alarms = a.alarm_rows()

@@ -250,6 +250,9 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
         role_of[f"c_out[{sp}]"] = role_column("outlet_conc", sp)
     ok = res.converged & np.isfinite(res.z).all(axis=1)
     out["reconciled_ok"] = ok.astype(float)
+    for j, rid in enumerate(model.reaction_ids):
+        out[f"extent:{rid}"] = np.where(ok, res.z[:, j], np.nan)
+        out[f"extent_sd:{rid}"] = np.where(ok, np.sqrt(np.clip(res.var_z[:, j], 0.0, None)), np.nan)
     rec_roles = roles.copy()
     for j, name in enumerate(names):
         role = role_of[name]
@@ -257,15 +260,19 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
             continue
         measured = res.measured[:, j] if res.measured.ndim == 2 else np.full(n, bool(res.measured[j]))
         out[f"reconciled:{role}"] = np.where(ok, res.x[:, j], np.nan)
+        out[f"sd:{role}"] = np.where(ok, np.sqrt(np.clip(res.var_x[:, j], 0.0, None)), np.nan)
         out[f"adjust_z:{role}"] = np.where(ok & measured, res.standardized_adjustment[:, j], np.nan)
         rec_roles[role] = np.where(ok, res.x[:, j], roles[role].to_numpy(dtype=float))
     # unmeasured outlet species that the balances determine are filled in as well
     for i, sp in enumerate(model.species):
         col = role_column("outlet_conc", sp)
         if col not in roles:
-            est = res.x[:, names.index(f"c_out[{sp}]")]
+            jj = names.index(f"c_out[{sp}]")
+            est = res.x[:, jj]
             if np.isfinite(est).any():
                 rec_roles[col] = np.where(ok, est, np.nan)
+                out[f"reconciled:{col}"] = np.where(ok, est, np.nan)
+                out[f"sd:{col}"] = np.where(ok, np.sqrt(np.clip(res.var_x[:, jj], 0.0, None)), np.nan)
     if min_fault_duration is None:
         ages = [t.max_age for t in model.tags if t.sampling == "lab" and t.max_age]
         min_fault_duration = pd.Timedelta(seconds=max(ages, default=0.0)) + pd.Timedelta("6h")

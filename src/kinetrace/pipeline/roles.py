@@ -85,6 +85,10 @@ def _combine(tags, values: pd.DataFrame, valid: pd.DataFrame) -> tuple[np.ndarra
         s = _tag_sigma_array(tag, v)
         if tag.sampling == "lab":
             s = s * np.sqrt(_run_lengths(v))
+        # a relative uncertainty of a zero reading (a stopped flow) is not zero: floor it at a
+        # thousandth of the tag's typical magnitude
+        typical = np.nanmedian(np.abs(v[ok])) if ok.any() else 0.0
+        s = np.maximum(s, 1e-3 * typical if typical > 0 else 1e-12)
         w = np.where(ok, 1.0 / np.where(ok, s, 1.0) ** 2, 0.0)
         num += np.where(ok, w * np.nan_to_num(v), 0.0)
         den += w

@@ -266,13 +266,15 @@ class CSTRBalances:
             o = self._linearised(va, y[active], sigma[active], status[active], acc_a, sub,
                                  False, minimal=it > 1)
             if it == 1:  # step scales: sigma for measured, first-pass sd for the estimated
-                vx = np.sqrt(np.nan_to_num(o["var_x"]))
+                # tiny negative variances from round-off are zero
+                vx = np.sqrt(np.clip(np.nan_to_num(o["var_x"]), 0.0, None))
                 sd_x = np.where(status == 0, sigma, np.where(vx > 0, vx, np.abs(va) + 1e-300))
-                vz = np.sqrt(np.nan_to_num(o["var_z"]))
+                vz = np.sqrt(np.clip(np.nan_to_num(o["var_z"]), 0.0, None))
                 sd_z = np.where(vz > 0, vz, np.abs(np.nan_to_num(o["z"])) + 1e-300)
             v_new = np.where(np.isfinite(o["x"]), o["x"], va)
             xi_new = np.where(np.isfinite(o["z"]), o["z"], xa)
-            step = np.max(np.abs(v_new - va) / sd_x[active], axis=1, initial=0.0)
+            with np.errstate(over="ignore"):
+                step = np.max(np.abs(v_new - va) / sd_x[active], axis=1, initial=0.0)
             step = np.maximum(step, np.max(np.abs(xi_new - xa) / sd_z[active], axis=1, initial=0.0))
             v[active], xi[active] = v_new, xi_new
             iters[active] = it
