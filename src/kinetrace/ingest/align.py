@@ -63,24 +63,36 @@ _SLICE = 1 << 16
 
 
 def _accumulate(start, end, x, edges, integ, cover, dv, dc) -> None:
-    """Add held segments [start, end) of value x to the interval integrals (in place)."""
+    """Add held segments [start, end) of value x to the interval integrals (in place).
+
+    Counts are binned over the slice's own range of intervals only (the readings are sorted),
+    so each slice costs in proportion to its size, not to the length of the grid.
+    """
     nb = len(edges) - 1
     use = end > start
     start, end, x = start[use], end[use], x[use]
+    if start.size == 0:
+        return
     bs = np.minimum(_bin(start, edges), nb - 1)
     be = np.minimum(_bin(end, edges), nb)            # interval holding the (exclusive) end
+    lo = int(bs.min())
+    m = int(be.max()) - lo + 1
+
+    def add(target, bins, weights):
+        target[lo:lo + m] += np.bincount(bins - lo, weights=weights, minlength=m)
+
     same = bs == be
     len_same = (end[same] - start[same]) / 1e9       # float seconds from each interval's own edge
-    integ += np.bincount(bs[same], weights=x[same] * len_same, minlength=nb + 1)
-    cover += np.bincount(bs[same], weights=len_same, minlength=nb + 1)
+    add(integ, bs[same], x[same] * len_same)
+    add(cover, bs[same], len_same)
     cr = ~same
     bs, be, x, start, end = bs[cr], be[cr], x[cr], start[cr], end[cr]
     head = (edges[bs + 1] - start) / 1e9
     tail = (end - edges[np.minimum(be, nb)]) / 1e9
-    integ += np.bincount(bs, weights=x * head, minlength=nb + 1)
-    cover += np.bincount(bs, weights=head, minlength=nb + 1)
-    integ += np.bincount(be, weights=x * tail, minlength=nb + 1)
-    cover += np.bincount(be, weights=tail, minlength=nb + 1)
+    add(integ, bs, x * head)
+    add(cover, bs, head)
+    add(integ, be, x * tail)
+    add(cover, be, tail)
     mid = be - bs > 1
     if mid.any():
         a, b, xv = bs[mid] + 1, be[mid], x[mid]

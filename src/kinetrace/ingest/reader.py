@@ -216,7 +216,7 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     edges = align.grid_edges(first, last, grid)
     if until_ns != NAT and edges[-1] > until_ns and (until_ns - edges[0]) % int(grid * 1e9) == 0:
         edges = edges[edges <= until_ns]
-    index = pd.DatetimeIndex(pd.to_datetime(edges[:-1], utc=True), name="timestamp")
+    index = pd.DatetimeIndex(edges[:-1].view("datetime64[ns]"), name="timestamp").tz_localize("UTC")
     nb = len(index)
     # column-major, so each tag's column is one contiguous run of memory, written once
     values = np.empty((nb, len(names)), order="F")
