@@ -46,7 +46,68 @@ def _print_summary(results, out_dir: Path) -> None:
                       _fmt(s["k_ref"], ".3e"), _fmt(s["activity"], ".3f"), str(s["steady_hours"]), s["status"])
     console = Console(width=max(110, Console().width))
     console.print(table)
+    for r in results:
+        console.print(_details(r), highlight=False, markup=False)
     console.print(f"Time series (one CSV per unit) and summary.csv written to: {out_dir}")
+
+
+def _details(r) -> str:
+    """Per-unit detail of the check: balances, sensors, kinetics, outlook, data quality."""
+    import numpy as np
+    import pandas as pd
+
+    from .kinetics.steady import steady_windows
+
+    s, m = r.series, r.model
+    main = m.reaction_ids[0]
+    last = s.loc[s.index > s.index[-1] - pd.Timedelta("24h")]
+    lines = [f"", f"== {m.id} ({s.index[0]:%Y-%m-%d %H:%M} to {s.index[-1]:%Y-%m-%d %H:%M} UTC)"]
+    clos = [c for c in s.columns if c.startswith("closure:")]
+    if clos:
+        med = ", ".join(f"{c.split(':', 1)[1]} {100 * last[c].abs().median():.2f} %" for c in clos
+                        if last[c].notna().any())
+        lines.append(f"  closure of the raw balances, last 24 h median |imbalance|: {med}")
+        lines.append(f"  global test: {int(last['global_test_alarm'].sum())} of {len(last)} intervals over the "
+                     f"95 % chi-square point; uncertainties {r.sigma_source}")
+        lines.append(f"  conversion reconciled {_fmt(float(last['conversion'].mean()), '.4f')}, "
+                     f"from raw measurements {_fmt(float(last['conversion_measured'].mean()), '.4f')}")
+    for f in r.faults:
+        lines.append(f"  SENSOR: {f.evidence()}")
+    w = steady_windows(s["steady"].astype(bool), min_duration=3)
+    hours = int(s["steady"].sum())
+    lines.append(f"  steady windows: {len(w)} ({hours} h of {len(s)})"
+                 + (f"; latest {w['start'].iloc[-1]:%m-%d %H:%M} to {w['end'].iloc[-1]:%m-%d %H:%M}" if len(w) else ""))
+    st = last.loc[last["steady"].astype(bool)]
+    if len(st) and f"k_ref_low:{main}" in st:
+        lines.append(f"  k_ref ({main}), last 24 h steady mean: {st[f'k_ref:{main}'].mean():.4g} "
+                     f"(95 % band {st[f'k_ref_low:{main}'].mean():.4g} to {st[f'k_ref_high:{main}'].mean():.4g}) SI; "
+                     f"activity {st['activity'].mean():.3f}")
+    kp = r.kinetic_parameters
+    if len(kp):
+        for _, row in kp.iterrows():
+            if np.isfinite(row.get("ci_low", np.nan)):
+                lines.append(f"  fitted {row['name']}: {row['value']:.4g} (95 % CI {row['ci_low']:.4g} to "
+                             f"{row['ci_high']:.4g}) {row['unit_of_measure']}")
+        verdict = kp.loc[kp["name"].str.startswith("rate_law_best"), "method"]
+        if len(verdict):
+            lines.append(f"  rate law: {verdict.iloc[0]}")
+        lines.append(f"  ({kp['method'].iloc[0]})")
+    a = r.assessment
+    if a is not None and a.forecast is not None:
+        lines.append(f"  outlook: {a.forecast.text}")
+    if a is not None and a.whatif:
+        from .monitor import CAUTIONS
+
+        lines.append("  what-if within the configured safe limits:")
+        for wi in a.whatif:
+            lines.append(f"    - {wi.message}")
+        lines.append(f"    CAUTION: {CAUTIONS}")
+    if r.data is not None:
+        from .ingest.summary import quality_text
+
+        lines.append("  data quality:")
+        lines += ["  " + ln for ln in quality_text(r.data).splitlines()[1:]]
+    return "\n".join(lines)
 
 
 def _run(config: Path, since, until, out) -> tuple[list, Path]:

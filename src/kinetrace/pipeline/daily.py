@@ -36,6 +36,8 @@ class UnitResult:
     faults: list = field(default_factory=list)     # SensorFault records from reconciliation
     assessment: object = None                       # kinetrace.monitor.UnitAssessment, or None
     kinetic_parameters: pd.DataFrame = field(default_factory=pd.DataFrame)   # fitted rate law, store rows
+    data: object = None                             # kinetrace.ingest.UnitData (readings and their fates)
+    sigma_source: str = ""                          # where the reconciliation's uncertainties came from
     rate_law_comparison: object = None              # kinetrace.kinetics.estimation.ModelComparison
 
 
@@ -55,6 +57,8 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     series = series.join(k_ref_band(series, model, rec.roles))
     series.attrs.update(attrs)
     result = UnitResult(model, series, roles, data.quality, {}, faults=rec.faults)
+    result.data = data
+    result.sigma_source = rec.sigma_source
     result.assessment = _assess(cfg, model, series)
     trend = None
     if result.assessment is not None and result.assessment.trend is not None:
