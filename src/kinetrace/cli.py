@@ -110,7 +110,7 @@ def _details(r) -> str:
     return "\n".join(lines)
 
 
-def _run(config: Path, since, until, out) -> tuple[list, Path]:
+def _run(config: Path, since, until, out, incremental: bool = False) -> tuple[list, Path]:
     from .pipeline import run_check
 
     if sys.stderr.isatty():
@@ -122,9 +122,10 @@ def _run(config: Path, since, until, out) -> tuple[list, Path]:
             def progress(unit_id, i, n):
                 bar.update(task, total=n, completed=i, description=f"checking {unit_id}")
 
-            return run_check(config, since=since, until=until, out_dir=out, progress=progress)
+            return run_check(config, since=since, until=until, out_dir=out, progress=progress,
+                             incremental=incremental)
     log = logging.getLogger("kinetrace")
-    return run_check(config, since=since, until=until, out_dir=out,
+    return run_check(config, since=since, until=until, out_dir=out, incremental=incremental,
                      progress=lambda u, i, n: log.info("checking unit %s (%d of %d)", u, i + 1, n))
 
 
@@ -166,7 +167,9 @@ def _attention(config: Path) -> list[str]:
 def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configuration TOML file."),
           since: str = typer.Option(None, help="Start of the period (ISO 8601; UTC unless an offset is given)."),
           until: str = typer.Option(None, help="End of the period (exclusive)."),
-          out: Path = typer.Option(None, help="Output folder (default: analysis.output_dir of the config).")):
+          out: Path = typer.Option(None, help="Output folder (default: analysis.output_dir of the config)."),
+          incremental: bool = typer.Option(False, "--incremental",
+                                           help="Only what is new since each unit's watermark in the store.")):
     """Back-calculate, reconcile and assess every unit; exit 1 when a unit needs attention.
 
     Exit status: 0 every unit on target and no open alarm; 1 a unit below target, without
@@ -175,12 +178,15 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
     """
     _setup_logging()
     try:
-        results, out_dir = _run(config, since, until, out)
+        results, out_dir = _run(config, since, until, out, incremental)
         reasons = _attention(config)
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
         raise typer.Exit(EXIT_ERROR) from None
-    _print_summary(results, out_dir)
+    if results:
+        _print_summary(results, out_dir)
+    else:
+        typer.echo("No new data since the last run; results unchanged.")
     if reasons:
         typer.echo("Needs attention:")
         for r in reasons:

@@ -41,34 +41,69 @@ class UnitResult:
     rate_law_comparison: object = None              # kinetrace.kinetics.estimation.ModelComparison
 
 
-def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, until=None) -> UnitResult:
-    """Run the check of one unit: ingest, role frame, back-calculation, summary."""
+def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, until=None,
+               history: pd.DataFrame | None = None, fresh_k_ref: dict | None = None,
+               keep_from=None) -> UnitResult:
+    """Run the check of one unit: ingest, reconciliation, back-calculation, kinetics, monitoring.
+
+    Parameters
+    ----------
+    cfg, model
+        The plant configuration and the unit.
+    config_path : path
+        The configuration file (relative paths).
+    since, until : optional
+        Period of readings to process. [UTC]
+    history : DataFrame, optional
+        Earlier results of the unit (from the store) that the trend, the drift charts, the
+        production accounting and the rate-law fit see together with the new rows.
+    fresh_k_ref : dict, optional
+        Fresh-catalyst k_ref of each reaction, when the fresh period is not in the readings. [SI]
+    keep_from : Timestamp, optional
+        Rows before it (read only as context for the steady-state test and the derivatives)
+        are dropped from the new results. [UTC]
+    """
     from ..ingest import read_unit
 
     data = read_unit(cfg, model, config_path=config_path, since=since, until=until)
     roles = role_frame(data.values, data.valid, data.volume, model)
-    measured = back_calculate(roles, model)
+    measured = back_calculate(roles, model, fresh_k_ref=fresh_k_ref)
     rec = reconcile_unit(roles, model, steady=measured["steady"])
-    series = back_calculate(rec.roles, model, steady=measured["steady"])
+    series = back_calculate(rec.roles, model, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
     attrs = dict(series.attrs)
     series = series.join(measured[[c for c in MEASURED_COLUMNS if c in measured]
                                   + [c for c in measured if c.startswith("k_ref:")]].add_suffix("_measured"))
     series = series.join(rec.frame)
     series = series.join(k_ref_band(series, model, rec.roles))
+    if keep_from is not None:
+        series = series.loc[series.index >= keep_from]
+        if series.empty:
+            return UnitResult(model, series, roles, data.quality, {}, faults=[])
     series.attrs.update(attrs)
     result = UnitResult(model, series, roles, data.quality, {}, faults=rec.faults)
     result.data = data
     result.sigma_source = rec.sigma_source
-    result.assessment = _assess(cfg, model, series)
+    full = series
+    if history is not None and len(history):
+        old = history.loc[history.index < series.index[0]].copy()
+        if "rate_basis_extents" in old:
+            old["rate_basis"] = np.where(old.pop("rate_basis_extents") > 0.5, "extents", "key_reactant")
+        old["steady"] = old["steady"].fillna(0.0).astype(bool)
+        full = pd.concat([old, series])
+        full.attrs.update(attrs)
+    result.assessment = _assess(cfg, model, full)
     trend = None
     if result.assessment is not None and result.assessment.trend is not None:
-        fitted = result.assessment.trend.predict(series.index)
+        fitted = result.assessment.trend.predict(full.index)
         fitted.loc[fitted.index < result.assessment.trend.run_start] = np.nan
-        series["activity_fit"] = fitted["activity"].to_numpy()
-        series["activity_band_low"] = fitted["lower"].to_numpy()
-        series["activity_band_high"] = fitted["upper"].to_numpy()
-        trend = series["activity_fit"]
-    result.kinetic_parameters, result.rate_law_comparison, problems = fit_history(series, model, trend)
+        full = full.copy()
+        full["activity_fit"] = fitted["activity"].to_numpy()
+        full["activity_band_low"] = fitted["lower"].to_numpy()
+        full["activity_band_high"] = fitted["upper"].to_numpy()
+        for c in ("activity_fit", "activity_band_low", "activity_band_high"):
+            series[c] = full[c].reindex(series.index).to_numpy()
+        trend = full["activity_fit"]
+    result.kinetic_parameters, result.rate_law_comparison, problems = fit_history(full, model, trend)
     for p in problems:
         log.info("unit %s: rate-law fit: %s", model.id, p)
     result.series = series
@@ -241,8 +276,15 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
         return run.run_id
 
 
+#: Readings before the watermark re-read as context on an incremental run (steady-state test,
+#: derivatives, reconciliation uncertainties). [pandas time span]
+INCREMENTAL_CONTEXT = "3D"
+#: Earlier results taken from the store for the trend, the charts and the rate-law fit. [time span]
+INCREMENTAL_HISTORY = "365D"
+
+
 def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str | Path | None = None,
-              store: str | None = "config", progress=None) -> tuple[list[UnitResult], Path]:
+              store: str | None = "config", progress=None, incremental: bool = False) -> tuple[list[UnitResult], Path]:
     """Run the daily check on every unit of a config, write one CSV per unit and fill the results store.
 
     Parameters
@@ -258,6 +300,11 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
         :func:`kinetrace.config.store_url`); another string: a SQLAlchemy URL; None: no store.
     progress : callable, optional
         Called with (unit id, index, count) before each unit.
+    incremental : bool
+        Process only what is new since each unit's watermark in the store (``since`` is then
+        ignored): readings from ``INCREMENTAL_CONTEXT`` before the watermark are re-read as
+        context, earlier results come from the store (``INCREMENTAL_HISTORY``), and only the
+        intervals after the watermark are written. A unit without a watermark is run in full.
 
     Returns
     -------
@@ -265,32 +312,60 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
     """
     from .. import store as result_store
     from ..config import store_url
+    from ..errors import IngestError
 
     cfg = load_config(config_path)
     out = (Path(out_dir) if out_dir else resolve_path(config_path, cfg.analysis.output_dir)).resolve()
     out.mkdir(parents=True, exist_ok=True)
+    url = None if store is None else (store_url(cfg, config_path) if store == "config" else store)
+    if incremental and url is None:
+        raise KinetraceError("an incremental check needs the results store (it keeps the watermarks)")
+    db = result_store.open_store(url) if url is not None else None
+    grid = pd.Timedelta(seconds=cfg.analysis.grid)
     results = []
     for i, unit in enumerate(cfg.units):
         if progress:
             progress(unit.id, i, len(cfg.units))
         model = unit_model(unit)
-        res = check_unit(cfg, model, config_path=config_path, since=since, until=until)
+        kwargs = {}
+        mark = db.watermark(model.id) if (incremental and db is not None) else None
+        if mark is not None:
+            keep_from = mark + grid
+            hist = db.series(model.id, start=keep_from - pd.Timedelta(INCREMENTAL_HISTORY), end=keep_from)
+            params = db.parameters(units=[model.id])
+            fresh = {n.split(":", 1)[1]: float(v) for n, v in zip(params.get("name", []), params.get("value", []))
+                     if str(n).startswith("k_ref_fresh:")}
+            kwargs = dict(since=keep_from - pd.Timedelta(INCREMENTAL_CONTEXT), history=hist,
+                          fresh_k_ref=fresh or None, keep_from=keep_from)
+        else:
+            kwargs = dict(since=since)
+        try:
+            res = check_unit(cfg, model, config_path=config_path, until=until, **kwargs)
+        except IngestError:
+            if mark is None:
+                raise
+            log.info("unit %s: nothing new after its watermark %s", model.id, mark)
+            continue
+        if mark is not None and res.series.empty:
+            log.info("unit %s: nothing new after its watermark %s", model.id, mark)
+            continue
         output_frame(res).to_csv(out / f"{_safe(model.id)}.csv", float_format="%.9g")
         res.quality.to_csv(out / f"{_safe(model.id)}_quality.csv")
         log.info("unit %s: %d rows written to %s", model.id, len(res.series), out)
         results.append(res)
-    pd.DataFrame([r.summary for r in results]).to_csv(out / "summary.csv", index=False, float_format="%.6g")
-    if store is not None:
-        url = store_url(cfg, config_path) if store == "config" else store
-        grid = pd.Timedelta(seconds=cfg.analysis.grid)
-        window = (min(r.series.index[0] for r in results), max(r.series.index[-1] for r in results) + grid)
-        db = result_store.open_store(url)
+    if results:
+        pd.DataFrame([r.summary for r in results]).to_csv(out / "summary.csv", index=False, float_format="%.6g")
+    if db is not None:
         try:
-            run_id = write_results(db, results, window=window,
-                                   fingerprint=result_store.fingerprint(Path(config_path).read_bytes()))
+            if results:
+                window = (min(r.series.index[0] for r in results), max(r.series.index[-1] for r in results) + grid)
+                run_id = write_results(db, results, window=window,
+                                       fingerprint=result_store.fingerprint(Path(config_path).read_bytes()))
+                log.info("results of run %s written to the store %s", run_id, _redact(url))
+            else:
+                log.info("no new data for any unit; the store is unchanged")
         finally:
             db.close()
-        log.info("results of run %s written to the store %s", run_id, _redact(url))
     return results, out
 
 
