@@ -30,6 +30,7 @@ from pathlib import Path
 import pyarrow as pa
 import pyarrow.compute as pc
 import pyarrow.csv as pcsv
+import pandas as pd
 import sqlalchemy as sa
 
 from ..config.schema import Source
@@ -98,6 +99,12 @@ def build_statement(source: Source, tags: list[str], since_ns: int, until_ns: in
     c = source.columns
     since, until = _bound(since_ns, source), _bound(until_ns, source)
     if source.query:
+        # a template compares with both bounds: an open end is bound as a time far outside any
+        # historian (1900 / 2200 UTC), since "timestamp >= NULL" would match nothing
+        if since is None:
+            since = _bound(int(pd.Timestamp("1900-01-01", tz="UTC").value), source)
+        if until is None:
+            until = _bound(int(pd.Timestamp("2200-01-01", tz="UTC").value), source)
         params = {"since": since, "until": until}
         return sa.text(source.query), params
     schema, _, table = source.table.rpartition(".")
