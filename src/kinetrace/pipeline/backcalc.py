@@ -57,14 +57,20 @@ def _conc_matrix(roles: pd.DataFrame, model: UnitModel, role: str) -> np.ndarray
 
 
 def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumulation: float = 0.02,
-                critical_value: float = 1.73, min_duration: int = 3, derivative_window: int = 5) -> pd.Series:
+                method: str = "drift_variance", window: int = 6, critical_value: float = 1.73,
+                min_duration: int = 3, derivative_window: int = 5) -> pd.Series:
     """Rows where the steady-state design equation may be trusted.
 
     Two conditions, both needed:
 
-    1. the inputs are steady: the Cao & Rhinehart (1995) filtered variance-ratio test passes
-       on feed flow and temperature (and volume, where it varies) at ``critical_value``
-       (1.73 is the null 99th percentile for l1 = 0.2, l2 = l3 = 0.1, REFERENCES.md);
+    1. the inputs are steady: feed flow and temperature (and volume, where it varies) pass a
+       steady-state test, by default the windowed drift-and-variance test over ``window``
+       intervals (slope t-test and variance ratio, :mod:`kinetrace.kinetics.steady`);
+       ``method="cao_rhinehart"`` uses the Cao & Rhinehart (1995) filtered variance-ratio
+       test at ``critical_value`` (1.73 is the null 99th percentile for l1 = 0.2, l2 = l3 = 0.1,
+       REFERENCES.md). On hourly means the filtered variances of the latter remember a step
+       for days (0.9^n), far longer than a reactor of a few hours' residence time needs to
+       settle, so the windowed test, which forgets after ``window`` intervals, is the default;
     2. the accumulation term the steady-state design equation leaves out is small:
        ``|dC_A/dt + (C_A/V) dV/dt| <= max_accumulation * (-r_A)``, with the derivatives from a
        Savitzky-Golay filter (Savitzky & Golay 1964) over ``derivative_window`` rows. The
@@ -85,6 +91,10 @@ def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumula
         -r_A from the design equation. [mol/(m^3 s)]
     max_accumulation : float
         Largest allowed accumulation as a fraction of the rate. [-]
+    method : str
+        ``drift_variance`` or ``cao_rhinehart``.
+    window : int
+        Window of the drift-and-variance test. [grid steps]
     critical_value : float
         Critical ratio of the variance-ratio test. [-]
     min_duration : int
@@ -107,7 +117,10 @@ def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumula
     ok = data.notna().all(axis=1)
     if ok.sum() < 10:
         return false
-    res = detect_steady(data[ok], min_duration=1, critical_value=critical_value, max_gap=2)
+    if method == "cao_rhinehart":
+        res = detect_steady(data[ok], method=method, min_duration=1, critical_value=critical_value, max_gap=2)
+    else:
+        res = detect_steady(data[ok], method=method, min_duration=1, max_gap=2, window=window)
     inputs_steady = res.mask.reindex(idx, fill_value=False).to_numpy(dtype=bool)
     ca = roles[role_column("outlet_conc", model.key_reactant)].interpolate(limit=2, limit_area="inside")
     vol = roles["volume"].interpolate(limit=2, limit_area="inside")
