@@ -19,7 +19,8 @@ Outputs, on the grid:
 * ``closure:<balance>`` relative imbalance of each raw balance (species balances over the
   species' flow scale, volume over the flow) [-], and ``closure_z:<balance>`` the same
   over its expected standard deviation [-];
-* ``global_test`` the chi-square statistic of the step and ``global_test_dof`` [-];
+* ``global_test`` the chi-square statistic of the step and ``global_test_dof`` [-], after any
+  faulty sensor is set aside; ``global_test_raw`` the statistic with every sensor [-];
 * ``reconciled:<role>`` the reconciled value of each measured role [SI];
 * ``adjust_z:<role>`` standardised adjustment of each measured role [-];
 * ``reconciled_ok`` 1 where the step converged with every extent observable [-].
@@ -244,6 +245,7 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
     out["global_test"] = res.objective
     out["global_test_dof"] = res.dof
     out["global_test_alarm"] = np.asarray(getattr(g, "reject", np.zeros(n, bool)), dtype=float)
+    out["global_test_raw"] = out["global_test"]
     role_of = {"q_in": "feed_flow", "q_out": "outlet_flow", "dvdt": "dvdt"}
     for sp in model.species:
         role_of[f"c_in[{sp}]"] = role_column("feed_conc", sp)
@@ -294,6 +296,11 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
             out.iloc[pos, out.columns.get_loc(f"reconciled:{role}")] = again.x[good, j]
             rec_roles.iloc[pos, rec_roles.columns.get_loc(role)] = again.x[good, j]
         out.iloc[pos, out.columns.get_loc("sensor_excluded")] = 1.0
+        # the global test after the faulty sensor is set aside (global_test_raw keeps the one before)
+        g2 = global_test(again)
+        out.iloc[pos, out.columns.get_loc("global_test")] = again.objective[good]
+        out.iloc[pos, out.columns.get_loc("global_test_dof")] = again.dof[good]
+        out.iloc[pos, out.columns.get_loc("global_test_alarm")] = np.asarray(g2.reject, dtype=float)[good]
     return ReconcileOutput(out, rec_roles, faults, sigma_source=sigma_source)
 
 
