@@ -50,6 +50,7 @@ class UnitModel:
     temperature_limits: tuple[float, float]   # [K]
     feed_flow_limits: tuple[float, float]     # [m^3/s]
     fresh_period: tuple | None = None
+    plan_feed_flow: float | None = None       # [m^3/s], from [units.plan]
 
     def index(self, species: str) -> int:
         """Row of ``species`` in ``nu`` and in concentration arrays."""
@@ -114,4 +115,5 @@ def unit_model(unit: Unit) -> UnitModel:
         level_table=table, feed=dict(unit.feed), tags=tuple(unit.tags),
         temperature_limits=tuple(unit.limits.temperature), feed_flow_limits=tuple(unit.limits.feed_flow),
         fresh_period=unit.activity.fresh_period,
+        plan_feed_flow=None if unit.plan is None else unit.plan.feed_flow,
     )

@@ -200,6 +200,12 @@ class Limits(_Strict):
     level: tuple[float, float] | None = None
 
 
+class Plan(_Strict):
+    """The operating plan the production gap is measured against (feed rate below plan, etc.)."""
+
+    feed_flow: VolumetricFlow
+
+
 class Activity(_Strict):
     """How the fresh-catalyst baseline is taken: a period of the history, or the rate law's k_ref."""
 
@@ -221,6 +227,7 @@ class Unit(_Strict):
     target: Target
     limits: Limits
     activity: Activity = Activity()
+    plan: Plan | None = None
     density: Density | None = None
 
     @field_validator("species")

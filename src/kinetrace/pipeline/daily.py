@@ -136,7 +136,7 @@ def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame):
         monitored = series.copy()
         monitored.loc[~monitored["steady"].astype(bool), "activity"] = np.nan
         return assess_unit(monitored, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
-                           volume_limits=vol_limits, arl0=DRIFT_ARL0)
+                           volume_limits=vol_limits, arl0=DRIFT_ARL0, plan_feed_flow=model.plan_feed_flow)
     except KinetraceError as exc:
         log.warning("unit %s: monitoring stage skipped: %s", model.id, exc)
         return None
