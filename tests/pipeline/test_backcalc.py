@@ -91,3 +91,43 @@ def test_r220_power_law_in_two_species_rebuilds_water_from_extents(models):
     np.testing.assert_allclose(out["k_ref:hydrolysis"], roles["_a"] * law.k_ref, rtol=1e-8)
     # AcOH not analysed: production from the extent, 2 mol per mol AA converted
     np.testing.assert_allclose(out["production"], 2 * q * (1500 - roles["outlet_conc:AA"]), rtol=1e-10)
+
+
+def test_reversible_isomerisation_unit_by_config_alone():
+    # A reactor with other chemistry, written as configuration only: A <=> B in an inert solvent S,
+    # reversible rate law r = k (C_A - C_B / K_eq(T)), van 't Hoff K_eq. Steady state by brentq on the
+    # A balance (independent of the back-calculation); the back-calculation must give k_ref back.
+    import copy
+    import tomllib
+
+    from kinetrace.config import validate_config
+
+    raw = tomllib.loads(DEMO.read_text())
+    u = copy.deepcopy(raw["units"][1])
+    u.update(id="R-900", key_reactant="A")
+    u["species"] = [{"name": "A", "molar_mass": "0.1 kg/mol"}, {"name": "B", "molar_mass": "0.1 kg/mol"},
+                    {"name": "S", "molar_mass": "0.09 kg/mol"}]
+    u["reactions"] = [{"id": "isom", "equation": "A <=> B", "rate_law": {
+        "method": "reversible", "k_ref": "2e-4 1/s", "activation_energy": "70 kJ/mol",
+        "reference_temperature": "60 degC", "orders": {"A": 1}, "reverse_orders": {"B": 1},
+        "equilibrium_constant": 4.0, "reaction_enthalpy": "-20 kJ/mol"}}]
+    u["feed"] = {"A": "2.0 mol/L", "B": "0 mol/L"}
+    u["tags"] = [t for t in u["tags"] if t["role"] in ("feed_flow", "outlet_flow", "temperature")] + [
+        {"tag": "R900-AT-1", "role": "outlet_conc", "species": "A", "unit": "mol/L", "sigma": "1 %",
+         "sampling": "analyzer", "max_age": "30 min"}]
+    u["target"] = {"species": "B", "rate": "5 t/d"}
+    raw["units"] = [u]
+    m = unit_model(validate_config(raw).units[0])
+    law = m.rate_laws["isom"]
+    idx = pd.date_range("2026-10-01", periods=3, freq="h", tz="UTC")
+    q, v = 1e-3, m.fixed_volume
+    rows = []
+    for t, a in zip([323.15, 333.15, 343.15], [1.0, 0.9, 0.8]):
+        k = _k(law, t, a)
+        keq = 4.0 * np.exp(20e3 / R_GAS * (1 / t - 1 / law.reference_temperature))   # van 't Hoff, dH = -20 kJ/mol
+        ca = brentq(lambda c: q * (2000 - c) / v - k * (c - (2000 - c) / keq), 0.0, 2000.0, xtol=1e-12)
+        rows.append({"feed_flow": q, "outlet_flow": q, "temperature": t, "volume": v, "feed_conc:A": 2000.0,
+                     "feed_conc:B": 0.0, "outlet_conc:A": ca, "_a": a})
+    roles = pd.DataFrame(rows, index=idx)
+    out = back_calculate(roles.drop(columns="_a"), m, steady=pd.Series(True, index=idx))
+    np.testing.assert_allclose(out["k_ref:isom"], roles["_a"] * law.k_ref, rtol=1e-8)
