@@ -80,7 +80,11 @@ if len(params) and params["method"].nunique() > 1:
             tooltip=["law:N", alt.Tooltip("value:Q", format=".1f")]).properties(height=120), key="ch_aicc")
         best = crit.loc[crit["value"].idxmin(), "law"]
         st.caption(f"Lowest AICc: {best}.")
-    table = params.pivot_table(index="name", columns="method", values="value", aggfunc="first")
-    st.dataframe(table, key="kin_laws")
+        st.dataframe(crit.assign(delta=crit["value"] - crit["value"].min())[["law", "value", "delta"]]
+                     .rename(columns={"value": "AICc", "delta": "AICc - lowest"}).sort_values("AICc"),
+                     hide_index=True, key="kin_laws")
+    verdict = params.loc[params["name"].str.startswith("rate_law_best"), "method"]
+    if len(verdict):
+        st.info(verdict.iloc[0], icon=":material/balance:")
 else:
     ui.not_available("Rate-law comparison", "the store holds parameters of one rate law only")

@@ -203,4 +203,7 @@ def fit_history(series: pd.DataFrame, model: UnitModel, activity_trend: pd.Serie
     if comparison is not None:
         out.append({"name": f"rate_law_best:{rid}", "value": float(comparison.distinguishable),
                     "unit_of_measure": "-", "method": comparison.verdict})
+        for law_name, fitted in fits.items():
+            out.append({"name": f"ratelaw_aicc:{law_name}", "value": float(fitted.aicc), "unit_of_measure": "-",
+                        "method": f"AICc of {law_name} for reaction {rid} over {fitted.n} steady stretches"})
     return pd.DataFrame(out), comparison, problems
