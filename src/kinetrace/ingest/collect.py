@@ -273,7 +273,7 @@ class Collector:
                 lo_t, hi_t = int(timed.min()), int(timed.max())
                 buf.tmin = lo_t if buf.tmin == NAT else min(buf.tmin, lo_t)
                 buf.tmax = hi_t if buf.tmax == NAT else max(buf.tmax, hi_t)
-            buf.ts.append(utc[r])
+            buf.ts.append(_pack_times(utc[r]))
             buf.value.append(vals[r])
             buf.fate.append(f)
             buf.n += b - a
@@ -299,9 +299,48 @@ class Collector:
         if not buf.ts:
             e = np.empty(0, np.int64)
             return e, np.empty(0), np.empty(0, np.int8), []
-        ts, val, fate = np.concatenate(buf.ts), np.concatenate(buf.value), np.concatenate(buf.fate)
+        ts = np.concatenate([_unpack_times(c) for c in buf.ts])
+        buf.ts = []
+        val, fate = np.concatenate(buf.value), np.concatenate(buf.fate)
         buf.ts, buf.value, buf.fate = [], [], []
         return ts, val, fate, buf.second
+
+
+#: Base of the compact time stamps held while reading: whole seconds from 2000-01-01 UTC in int32
+#: cover 1931-2068; chunks with fractional seconds or times outside that range stay int64.
+_PACK_BASE = 946_684_800 * 1_000_000_000
+_PACK_NAT = np.iinfo(np.int32).min
+
+
+def _pack_times(ts: np.ndarray) -> np.ndarray:
+    """Time stamps [ns] as int32 seconds from 2000-01-01 when that loses nothing, else unchanged.
+
+    Halves the memory of the largest per-reading buffer while a source is read (readings of
+    historians are stamped to the second or coarser).
+
+    >>> t = np.array([946_684_800_000_000_000, NAT, 946_684_860_000_000_000])
+    >>> p = _pack_times(t); p.dtype.name, bool((_unpack_times(p) == t).all())
+    ('int32', True)
+    >>> _pack_times(np.array([946_684_800_500_000_000])).dtype.name      # half a second: kept
+    'int64'
+    """
+    ok = ts != NAT
+    rel = ts[ok] - _PACK_BASE
+    if rel.size and ((rel % 1_000_000_000).any() or rel.min() <= (_PACK_NAT + 1) * 1_000_000_000
+                     or rel.max() >= np.iinfo(np.int32).max * 1_000_000_000):
+        return ts
+    out = np.full(ts.shape, _PACK_NAT, dtype=np.int32)
+    out[ok] = rel // 1_000_000_000
+    return out
+
+
+def _unpack_times(chunk: np.ndarray) -> np.ndarray:
+    """Inverse of :func:`_pack_times`: int64 nanoseconds UTC, NaT as ``NAT``."""
+    if chunk.dtype == np.int64:
+        return chunk
+    out = chunk.astype(np.int64) * 1_000_000_000 + _PACK_BASE
+    out[chunk == _PACK_NAT] = NAT
+    return out
 
 
 def _bad_time_text(uniq, code, timezone, fate=BAD_TIME) -> str:
