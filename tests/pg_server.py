@@ -22,7 +22,6 @@ import shutil
 import socket
 import subprocess
 import tempfile
-import time
 from pathlib import Path
 
 import pytest
@@ -98,13 +97,10 @@ class PgCluster:
         if r.returncode != 0:
             log = self.log.read_text() if self.log.exists() else ""
             raise RuntimeError(f"pg_ctl start failed:\n{r.stdout}\n{r.stderr}\n{log}")
-        deadline = time.time() + 30
-        while time.time() < deadline:
-            with socket.socket() as s:
-                if s.connect_ex(("127.0.0.1", self.port)) == 0:
-                    return
-            time.sleep(0.1)
-        raise RuntimeError("PostgreSQL did not accept connections within 30 s")
+        # pg_ctl -w has waited for the server; pg_isready confirms the TCP listener it will be used on
+        r = self._run([str(self.bindir / "pg_isready"), "-h", "127.0.0.1", "-p", str(self.port), "-t", "30"])
+        if r.returncode != 0:
+            raise RuntimeError(f"PostgreSQL does not accept connections on 127.0.0.1:{self.port}: {r.stdout}")
 
     @property
     def url(self) -> str:
