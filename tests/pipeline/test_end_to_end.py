@@ -16,6 +16,7 @@ import pytest
 from kinetrace.kinetics.steady import steady_windows
 from kinetrace.pipeline import run_check
 from kinetrace.simulator import generate_sample_historian
+from tests.pipeline.demo import demo_config
 
 ROOT = Path(__file__).resolve().parents[2]
 DAYS = 24
@@ -25,12 +26,7 @@ DAYS = 24
 def demo_run(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("e2e")
     paths = generate_sample_historian(ROOT / "config" / "demo_plant.toml", tmp / "hist", days=DAYS, seed=11)
-    text = (ROOT / "config" / "demo_plant.toml").read_text()
-    text = text.replace('path = "../sample_historian/generated/calder_bank.sqlite"', f'path = "{paths["sqlite"]}"')
-    text = text.replace('output_dir = "../out"', f'output_dir = "{tmp / "out"}"')
-    cfg = tmp / "plant.toml"
-    cfg.write_text(text)
-    results, out = run_check(cfg)
+    results, out = run_check(demo_config(tmp, paths["sqlite"]))
     facts = json.loads(Path(paths["facts"]).read_text())
     truths = {}
     for r in results:
@@ -139,12 +135,7 @@ def biased_run(tmp_path_factory):
     scen = scenario_from_dict(raw)
     paths = generate_sample_historian(ROOT / "config" / "demo_plant.toml", tmp / "hist", scenario=scen, days=20,
                                       seed=5)
-    text = (ROOT / "config" / "demo_plant.toml").read_text()
-    text = text.replace('path = "../sample_historian/generated/calder_bank.sqlite"', f'path = "{paths["sqlite"]}"')
-    text = text.replace('output_dir = "../out"', f'output_dir = "{tmp / "out"}"')
-    cfg = tmp / "plant.toml"
-    cfg.write_text(text)
-    results, _ = run_check(cfg)
+    results, _ = run_check(demo_config(tmp, paths["sqlite"]))
     t = pd.read_parquet(paths["truth_R-210"]).set_index("timestamp")
     t.index = pd.to_datetime(t.index, utc=True)
     return {r.model.id: r for r in results}["R-210"], t.resample("1h").mean(), onset

@@ -10,17 +10,9 @@ import pytest
 
 from kinetrace.pipeline import run_check
 from kinetrace.simulator import generate_sample_historian
+from tests.pipeline.demo import demo_config
 
 ROOT = Path(__file__).resolve().parents[2]
-
-
-def _config(tmp, sqlite):
-    text = (ROOT / "config" / "demo_plant.toml").read_text()
-    text = text.replace('path = "../sample_historian/generated/calder_bank.sqlite"', f'path = "{sqlite}"')
-    text = text.replace('output_dir = "../out"', f'output_dir = "{tmp / "out"}"')
-    cfg = tmp / "plant.toml"
-    cfg.write_text(text)
-    return cfg
 
 
 @pytest.fixture(scope="module")
@@ -28,7 +20,7 @@ def demo90(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("demo90")
     paths = generate_sample_historian(ROOT / "config" / "demo_plant.toml", tmp / "hist", write_sql=True)
     facts = json.loads(Path(paths["facts"]).read_text())
-    return tmp, _config(tmp, paths["sqlite"]), facts
+    return tmp, demo_config(tmp, paths["sqlite"]), facts
 
 
 @pytest.mark.slow

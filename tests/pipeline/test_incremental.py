@@ -10,6 +10,7 @@ import pytest
 from kinetrace.pipeline import run_check
 from kinetrace.simulator import generate_sample_historian
 from kinetrace.store import open_store
+from tests.pipeline.demo import demo_config
 
 ROOT = Path(__file__).resolve().parents[2]
 
@@ -18,13 +19,7 @@ ROOT = Path(__file__).resolve().parents[2]
 def plant(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("incr")
     paths = generate_sample_historian(ROOT / "config" / "demo_plant.toml", tmp / "hist", days=16, seed=3)
-    text = (ROOT / "config" / "demo_plant.toml").read_text()
-    text = text.replace('path = "../sample_historian/generated/calder_bank.sqlite"', f'path = "{paths["sqlite"]}"')
-    text = text.replace('output_dir = "../out"', f'output_dir = "{tmp / "out"}"')
-    text = text.replace('url = "sqlite:///../out/results.sqlite"', 'url = "sqlite:///incremental.sqlite"')
-    cfg = tmp / "plant.toml"
-    cfg.write_text(text)
-    return tmp, cfg
+    return tmp, demo_config(tmp, paths["sqlite"], store_url=f"sqlite:///{tmp / 'incremental.sqlite'}")
 
 
 def test_incremental_runs_match_one_full_run(plant):

@@ -15,6 +15,7 @@ import pytest
 
 from kinetrace.pipeline import run_check
 from kinetrace.simulator import generate_sample_historian, scenario_from_dict
+from tests.pipeline.demo import demo_config
 
 ROOT = Path(__file__).resolve().parents[2]
 SEEDS = range(101, 109)
@@ -42,12 +43,7 @@ def test_intervals_hold_the_true_values_in_most_seeds(tmp_path):
         d = tmp_path / f"s{seed}"
         paths = generate_sample_historian(ROOT / "config" / "demo_plant.toml", d, scenario=scen, days=12,
                                           seed=seed, write_sql=True)
-        text = (ROOT / "config" / "demo_plant.toml").read_text()
-        text = text.replace('path = "../sample_historian/generated/calder_bank.sqlite"', f'path = "{paths["sqlite"]}"')
-        text = text.replace('output_dir = "../out"', f'output_dir = "{d / "out"}"')
-        cfg = d / "plant.toml"
-        cfg.write_text(text)
-        results, _ = run_check(cfg, store=None)
+        results, _ = run_check(demo_config(d, paths["sqlite"]), store=None)
         p = next(r for r in results if r.model.id == "R-210").kinetic_parameters.set_index("name")
         for name, true in truth.items():
             hits[name] += int(p.loc[name, "ci_low"] <= true <= p.loc[name, "ci_high"])

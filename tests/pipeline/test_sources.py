@@ -14,13 +14,9 @@ from typer.testing import CliRunner
 
 from kinetrace.cli import app
 from kinetrace.simulator import generate_sample_historian
+from tests.pipeline.demo import demo_config
 
 ROOT = Path(__file__).resolve().parents[2]
-SOURCE = '''[source]
-kind = "sqlite"
-path = "../sample_historian/generated/calder_bank.sqlite"
-table = "readings"
-good_quality = ["OK"]'''
 
 
 @pytest.fixture(scope="module")
@@ -28,17 +24,6 @@ def hist(tmp_path_factory):
     tmp = tmp_path_factory.mktemp("sources")
     paths = generate_sample_historian(ROOT / "config" / "demo_plant.toml", tmp / "hist", days=6, seed=8)
     return tmp, paths
-
-
-def _config(tmp, name, source_block):
-    text = (ROOT / "config" / "demo_plant.toml").read_text()
-    assert SOURCE in text
-    text = text.replace(SOURCE, source_block)
-    text = text.replace('output_dir = "../out"', f'output_dir = "{tmp / name}"')
-    text = text.replace('url = "sqlite:///../out/results.sqlite"', f'url = "sqlite:///{tmp / name}/results.sqlite"')
-    cfg = tmp / f"{name}.toml"
-    cfg.write_text(text)
-    return cfg
 
 
 def _run(cfg):
@@ -75,7 +60,7 @@ def test_same_results_from_every_source(hist, pg_url, monkeypatch):
                           'query = "SELECT timestamp, tag, value, quality FROM plant_readings '
                           'WHERE timestamp >= :since AND timestamp < :until ORDER BY timestamp, tag"',
     }
-    got = {name: _run(_config(tmp, name, block)) for name, block in blocks.items()}
+    got = {name: _run(demo_config(tmp, source_block=block, name=name)) for name, block in blocks.items()}
     ref = got.pop("sqlite")
     for name, res in got.items():
         for unit in ref:
