@@ -29,14 +29,15 @@ from __future__ import annotations
 
 import numpy as np
 import pandas as pd
-from scipy import signal
 
 from ..chemistry import conversion, extents_from_flows, product_yield, selectivity
 from ..config import UnitModel
 from ..errors import DataQualityError
 from ..kinetics import arrhenius, ratelaws
+from ..kinetics.activity import fresh_baseline
 from ..kinetics.steady import detect_steady, steady_windows
 from ..reactor import key_reactant_rate, residence_time
+from .derivatives import smoothed_derivative
 from .roles import role_column
 
 #: Output columns and their units (SI). Reaction-specific columns carry ``:<reaction id>``.
@@ -122,13 +123,13 @@ def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumula
     else:
         res = detect_steady(data[ok], method=method, min_duration=1, max_gap=2, window=window)
     inputs_steady = res.mask.reindex(idx, fill_value=False).to_numpy(dtype=bool)
-    ca = roles[role_column("outlet_conc", model.key_reactant)].interpolate(limit=2, limit_area="inside")
-    vol = roles["volume"].interpolate(limit=2, limit_area="inside")
+    ca = roles[role_column("outlet_conc", model.key_reactant)].to_numpy(dtype=float)
+    vol = roles["volume"].to_numpy(dtype=float)
     dt = float((idx[1] - idx[0]).total_seconds())
-    dca = signal.savgol_filter(ca.to_numpy(dtype=float), derivative_window, 2, deriv=1, delta=dt, mode="interp")
-    dv = signal.savgol_filter(vol.to_numpy(dtype=float), derivative_window, 2, deriv=1, delta=dt, mode="interp")
+    dca = smoothed_derivative(ca, dt, derivative_window)
+    dv = smoothed_derivative(vol, dt, derivative_window)
     with np.errstate(invalid="ignore", divide="ignore"):
-        acc = np.abs(dca + ca.to_numpy() / vol.to_numpy() * dv) / np.abs(np.asarray(key_rate, dtype=float))
+        acc = np.abs(dca + ca / vol * dv) / np.abs(np.asarray(key_rate, dtype=float))
     good = inputs_steady & (acc <= max_accumulation)
     # the variance-ratio test is causal and lags the start of a transient: looking back over the
     # record, a row counts as steady only when its neighbours do too (erosion by one row)
@@ -240,13 +241,22 @@ def back_calculate(roles: pd.DataFrame, model: UnitModel, *, fresh_k_ref: dict[s
 
 
 def _fresh_baseline(out: pd.DataFrame, rid: str, configured: float, period) -> tuple[float, str]:
-    """Median k_ref over the steady rows of the fresh period, else the configured k_ref."""
+    """Median k_ref over the steady rows of the fresh period (at least 3), else the configured k_ref.
+
+    The median is :func:`kinetrace.kinetics.activity.fresh_baseline` (``method="period"``).
+    """
     if period is not None:
-        start, end = (pd.Timestamp(t) for t in period)
-        start = start.tz_localize("UTC") if start.tzinfo is None else start.tz_convert("UTC")
-        end = end.tz_localize("UTC") if end.tzinfo is None else end.tz_convert("UTC")
-        sel = out.loc[(out.index >= start) & (out.index < end)]
-        vals = sel.loc[sel["steady"], f"k_ref:{rid}"].dropna()
-        if len(vals) >= 3:
-            return float(vals.median()), f"median of {len(vals)} steady rows {start:%Y-%m-%d %H:%M} to {end:%Y-%m-%d %H:%M} UTC"
+        start, end = (_utc(t) for t in period)
+        mask = (out.index >= start) & (out.index < end) & out["steady"].to_numpy(dtype=bool)
+        k = out[f"k_ref:{rid}"]
+        if k[mask].notna().sum() >= 3:
+            base = fresh_baseline(k, period=mask)
+            return base.value, (f"median of {base.n_used} steady rows {start:%Y-%m-%d %H:%M} to "
+                                f"{end:%Y-%m-%d %H:%M} UTC")
     return float(configured), "configured k_ref of the rate law"
+
+
+def _utc(t) -> pd.Timestamp:
+    """A time as a tz-aware UTC Timestamp; a naive time is taken as UTC."""
+    ts = pd.Timestamp(t)
+    return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")

@@ -35,12 +35,13 @@ from dataclasses import dataclass, field
 
 import numpy as np
 import pandas as pd
-from scipy import signal
 
 from ..config import UnitModel
 from ..errors import KinetraceError
 from ..reconcile import detect_persistent_bias, global_test, reconcile_cstr
 from ..reconcile import UnobservableError
+from .backcalc import _utc
+from .derivatives import smoothed_derivative
 from .roles import role_column
 
 
@@ -127,22 +128,6 @@ def _matrix(roles: pd.DataFrame, model: UnitModel, prefix: str) -> np.ndarray:
                             for c in cols])
 
 
-def _derivative(x: np.ndarray, dt: float, window: int) -> np.ndarray:
-    """Savitzky-Golay first derivative of each column, over interpolated gaps (NaN stays NaN)."""
-    frame = pd.DataFrame(x).interpolate(limit=3, limit_area="inside", axis=0)
-    filled = frame.to_numpy(dtype=float)
-    out = np.full_like(filled, np.nan)
-    for j in range(filled.shape[1]):          # a loop over species, not over time
-        col = filled[:, j]
-        ok = np.isfinite(col)
-        if ok.sum() >= window and ok.all():
-            out[:, j] = signal.savgol_filter(col, window, 2, deriv=1, delta=dt, mode="interp")
-        elif ok.sum() >= window:
-            tmp = np.where(ok, col, np.interp(np.arange(len(col)), np.flatnonzero(ok), col[ok]))
-            out[:, j] = np.where(ok, signal.savgol_filter(tmp, window, 2, deriv=1, delta=dt, mode="interp"), np.nan)
-    return out
-
-
 def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: int = 5,
                    min_fault_duration: str | None = None, fault_allowance: float = 1.0,
                    fault_threshold: float = 5.0, sigma: str = "data", steady=None) -> ReconcileOutput:
@@ -200,9 +185,9 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
     s_cout = np.where(np.isfinite(s_cout), s_cout, 0.0)
     vol = roles["volume"].to_numpy(dtype=float)
     moles = vol[:, None] * c_out
-    acc = np.nan_to_num(_derivative(moles, dt, derivative_window))     # d(V C)/dt, 0 where unknown
+    acc = np.nan_to_num(smoothed_derivative(moles, dt, derivative_window))     # d(V C)/dt, 0 where unknown
     variable_volume = model.fixed_volume is None
-    dvdt = _derivative(vol[:, None], dt, derivative_window)[:, 0] if variable_volume else None
+    dvdt = smoothed_derivative(vol, dt, derivative_window) if variable_volume else None
     if dvdt is not None:
         sig_level = roles["sigma:level"].to_numpy(dtype=float) if "sigma:level" in roles else np.full(n, 0.005)
         # dV/dt from a smoothed level: its sigma ~ sigma_V * sqrt(12 / (w (w^2 - 1))) / dt for a
@@ -225,10 +210,8 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
         if drop is not None:
             if drop in ("q_in", "q_out"):
                 arr[drop][:] = np.nan
-            else:
-                side, sp = drop[:5], drop[6:-1]          # "c_in[" / "c_out" + "[sp]"
-                side = "c_in" if drop.startswith("c_in[") else "c_out"
-                sp = drop[drop.index("[") + 1:-1]
+            else:                                            # "c_in[<sp>]" or "c_out[<sp>]"
+                side, sp = drop[:-1].split("[")
                 arr[side][:, model.species.index(sp)] = np.nan
         return reconcile_cstr(arr["q_in"], arr["q_out"], arr["c_in"], arr["c_out"], model.nu,
                               dvdt=arr["dvdt"], accumulation=arr["accumulation"], species=model.species,
@@ -244,7 +227,7 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
     g = global_test(res)
     out["global_test"] = res.objective
     out["global_test_dof"] = res.dof
-    out["global_test_alarm"] = np.asarray(getattr(g, "reject", np.zeros(n, bool)), dtype=float)
+    out["global_test_alarm"] = np.asarray(g.reject, dtype=float)
     out["global_test_raw"] = out["global_test"]
     role_of = {"q_in": "feed_flow", "q_out": "outlet_flow", "dvdt": "dvdt"}
     for sp in model.species:
@@ -388,11 +371,6 @@ def _which_moved(res, names, candidates, estimates, onset: int, idx, span: int =
         if sc < score - 1e-9:
             best, score = cand, sc
     return best
-
-
-def _utc(t) -> pd.Timestamp:
-    ts = pd.Timestamp(t)
-    return ts.tz_localize("UTC") if ts.tzinfo is None else ts.tz_convert("UTC")
 
 
 def _role_of_tag(tag) -> str:

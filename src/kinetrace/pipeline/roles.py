@@ -48,15 +48,16 @@ def role_column(role: str, species: str | None) -> str:
 
 
 def _tag_sigma_array(tag, values: np.ndarray) -> np.ndarray:
+    if tag.sigma is None:
+        # a tag without a stated uncertainty gets 1 % of reading, so that it can still be combined
+        # (common practice, no source: a typical process-instrument uncertainty)
+        return np.maximum(0.01 * np.abs(values), 1e-12)
     kind = ROLE_KIND[tag.role]
-    rel, absolute = tag_sigma(tag, kind if kind != "level" else "dimensionless")
-    if kind == "level" and tag.sigma and tag.sigma.strip().endswith("%"):
+    if kind == "level" and tag.sigma.strip().endswith("%"):
         # a level's "0.5 %" is 0.5 % of span, i.e. an absolute 0.005 of the fraction
-        rel, absolute = 0.0, rel
-    sig = rel * np.abs(values) + absolute
-    # a tag without a stated uncertainty gets 1 % of reading, so that it can still be combined
-    # (common practice, no source: a typical process-instrument uncertainty)
-    return np.where(sig > 0, sig, np.maximum(0.01 * np.abs(values), 1e-12)) if tag.sigma is None else sig
+        return np.full(values.shape, float(tag.sigma.strip()[:-1]) / 100.0)
+    rel, absolute = tag_sigma(tag, kind if kind != "level" else "dimensionless")
+    return rel * np.abs(values) + absolute
 
 
 def _run_lengths(v: np.ndarray) -> np.ndarray:
