@@ -5,7 +5,8 @@ import pandas as pd
 import pytest
 
 from kinetrace.chemistry import conversion
-from kinetrace.reactor import key_reactant_rate, net_formation_rate, residence_time
+from kinetrace.kinetics.balances import consumption_rate_steady
+from kinetrace.reactor import key_reactant_rate, residence_time
 from kinetrace.units import to_si
 
 
@@ -22,8 +23,8 @@ def test_fogler_ethylene_glycol_cstr_back_calculates_k():
     # 197.3 is printed to 4 s.f.; 0.311 to 3 s.f.
     assert k * 60 == pytest.approx(0.311, rel=1e-3)
     # the same from the species balance form
-    r = net_formation_rate(v0, ca0, v0, ca0 * (1 - x), volume)
-    assert -r == pytest.approx(rate, rel=1e-12)
+    r = consumption_rate_steady(ca0, ca0 * (1 - x), volume, v0)
+    assert r == pytest.approx(rate, rel=1e-12)
     # 197.3 ft3 in US gallons: about 1480 gal [found], 3 s.f.
     assert to_si(197.3, "ft^3", "volume") / to_si(1, "US_liquid_gallon", "volume") == pytest.approx(1480, rel=5e-3)
 

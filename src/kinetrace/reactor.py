@@ -5,43 +5,13 @@ For a CSTR at steady state the mole balance of species i is
 (Fogler, Elements of Chemical Reaction Engineering, Ch. 1 and 2, the CSTR design
 equation ``V = F_A0 X / (-r_A)``). Solved for the rate it gives
 ``R_i = (Q_out C_i - Q_in C_i,in) / V``; for the key reactant ``-r_A = F_A0 X / V``.
-All functions take arrays in SI and are vectorised over time.
+All functions take arrays in SI and are vectorised over time. The same balance per species,
+with unequal flows, is :func:`kinetrace.kinetics.balances.consumption_rate_steady`.
 """
 
 from __future__ import annotations
 
 import numpy as np
-
-
-def net_formation_rate(flow_in, conc_in, flow_out, conc_out, volume):
-    """Net rate of formation of a species from the steady-state CSTR mole balance.
-
-    Parameters
-    ----------
-    flow_in, flow_out : float or array_like
-        Volumetric feed and outlet flow. [m^3/s]
-    conc_in, conc_out : float or array_like
-        Concentration of the species in the feed and in the reactor (= outlet). [mol/m^3]
-    volume : float or array_like
-        Liquid volume. [m^3]
-
-    Returns
-    -------
-    float or ndarray
-        R_i = (Q_out C_i - Q_in C_i,in) / V, negative for a reactant. [mol/(m^3 s)]
-
-    References
-    ----------
-    .. [1] Fogler, H. S. Elements of Chemical Reaction Engineering, CSTR design equation (Ch. 1-2).
-
-    >>> float(net_formation_rate(0.01, 1000.0, 0.01, 200.0, 4.0))
-    -2.0
-    """
-    q_in = np.asarray(flow_in, dtype=float)
-    q_out = np.asarray(flow_out, dtype=float)
-    v = np.asarray(volume, dtype=float)
-    with np.errstate(divide="ignore", invalid="ignore"):
-        return (q_out * np.asarray(conc_out, dtype=float) - q_in * np.asarray(conc_in, dtype=float)) / np.where(v > 0, v, np.nan)
 
 
 def key_reactant_rate(molar_feed_rate, conversion, volume):
