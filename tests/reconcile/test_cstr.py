@@ -198,3 +198,65 @@ def test_extents_unobservable_at_one_step_only(rng):
     with pytest.raises(ReconciliationError, match="no time steps"):
         reconcile_cstr(np.zeros(0), np.zeros(0), np.zeros((0, 4)), np.zeros((0, 4)), NU,
                        sigma_q_in=SIG_Q, sigma_q_out=SIG_Q, sigma_c_in=SIG_CIN, sigma_c_out=SIG_COUT)
+
+
+# ----- compiled kernel (steps with nothing missing) against the numpy path -----
+# The numpy path (taken for cov="full", and for steps with a missing value) is the one checked
+# against SLSQP and cvxpy above; the compiled kernel must give the same numbers. Same method,
+# two implementations, so the tolerances are round-off (the kernel stops iterating one pass
+# earlier: at most tol = 1e-10 sd apart).
+def _same(a, b):
+    sd = np.max(b.sigma, axis=0)  # per variable: round-off is judged against its sigma
+    big = np.max(b.imbalance_scale, axis=0) + 1e-300
+    atol = {"x": 1e-8 * sd, "adjustment": 1e-8 * sd, "var_x": 1e-8 * sd ** 2,
+            "var_adjustment": 1e-8 * sd ** 2, "objective": 1e-10, "imbalance": 1e-10 * big, "imbalance_scale": 1e-10 * big}
+    for f in ("x", "var_x", "adjustment", "var_adjustment", "z", "var_z", "objective", "imbalance",
+              "imbalance_sd", "imbalance_scale"):
+        A, B = getattr(a, f), getattr(b, f)
+        np.testing.assert_array_equal(np.isnan(A), np.isnan(B), err_msg=f)
+        tol = atol.get(f, 1e-10 * np.nanmax(np.abs(B), axis=0, initial=0.0))
+        excess = np.abs(np.nan_to_num(A) - np.nan_to_num(B)) - (tol + 1e-8 * np.abs(np.nan_to_num(B)))
+        assert np.all(excess <= 0), (f, np.unravel_index(np.argmax(excess), excess.shape))
+    for f in ("redundant", "observable_x", "observable_z", "dof", "converged", "measured"):
+        np.testing.assert_array_equal(getattr(a, f), getattr(b, f), err_msg=f)
+
+
+@pytest.mark.parametrize("case", ["plain", "fixed_and_level", "elements", "mixed_missing"])
+def test_compiled_kernel_matches_numpy_path(rng, case):
+    T = 3000  # more than one block of the parallel loop
+    y, _ = _synthetic(rng, T)
+    kw = dict(sigma_q_in=SIG_Q, sigma_q_out=SIG_Q, sigma_c_in=SIG_CIN, sigma_c_out=SIG_COUT)
+    nu, E = NU, None
+    if case == "fixed_and_level":  # products known absent from the feed; level signal and hold-up
+        kw.update(sigma_c_in=np.array([10.0, 0.0, 0.0, 15.0]), dvdt=1e-6 * rng.standard_normal(T),
+                  sigma_dvdt=1e-6, accumulation=1e-3 * rng.standard_normal((T, 4)))
+        y["c_in"][:, 1:3] = 0.0
+    elif case == "elements":
+        nu, E = None, np.array([[1.0, 1.0, 1.0, 0.0], [0.0, 1.0, 2.0, 1.0]])
+    elif case == "mixed_missing":  # some steps go to the numpy path inside the same call
+        y["c_out"][::7, 1] = np.nan
+        y["q_out"][::11] = np.nan
+    args = (y["q_in"], y["q_out"], y["c_in"], y["c_out"], nu)
+    fast = reconcile_cstr(*args, element_matrix=E, **kw)
+    ref = reconcile_cstr(*args, element_matrix=E, cov="full", **kw)
+    _same(fast, ref)
+    assert fast.converged.all()
+
+
+def test_rank_deficient_steps_fall_back_to_the_numpy_path():
+    # Every variable known exactly at step 1 (sigma 0 on all): the reduced system is empty of
+    # information there; the kernel hands the step over and the pseudo-inverse path gives dof 0.
+    T = 3
+    qi = np.full(T, 1e-3)
+    xi = np.array([0.4, 0.2])
+    cout = np.tile(C_IN + xi @ NU.T / 1e-3, (T, 1))
+    sq = np.array([SIG_Q, 0.0, SIG_Q])
+    sc = np.where(np.arange(T)[:, None] == 1, 0.0, np.tile(SIG_COUT, (T, 1)))
+    sci = np.where(np.arange(T)[:, None] == 1, 0.0, np.tile(SIG_CIN, (T, 1)))
+    r = reconcile_cstr(qi, qi, np.tile(C_IN, (T, 1)), cout, NU, sigma_q_in=sq, sigma_q_out=sq,
+                       sigma_c_in=sci, sigma_c_out=sc)
+    ref = reconcile_cstr(qi, qi, np.tile(C_IN, (T, 1)), cout, NU, sigma_q_in=sq, sigma_q_out=sq,
+                         sigma_c_in=sci, sigma_c_out=sc, cov="full")
+    assert r.dof.tolist() == [3, 0, 3] == ref.dof.tolist()
+    np.testing.assert_allclose(r.extent, np.tile(xi, (T, 1)), rtol=1e-10)
+    _same(r, ref)

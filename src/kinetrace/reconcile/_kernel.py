@@ -283,7 +283,7 @@ def wls_kernel(y, var, A, Az=None, b=None, full_cov=False, minimal=False):
                 var_adj=var_adj, var_x=vk - var_adj,
                 var_z=np.where(obs, np.einsum("aak->ak", cov_z), np.nan),
                 observable=np.broadcast_to(obs, (nz, kk)),
-                redundant=colnorm > NULL_TOL * np.maximum(colnorm.max(axis=0, keepdims=True), 1e-300),
+                redundant=colnorm > NULL_TOL * np.maximum(colnorm.max(axis=0, keepdims=True, initial=0.0), 1e-300),
                 objective=np.sum(rr * lam, axis=0), dof=rank,
                 imbalance=_mv(Ak, yk - x),
                 imbalance_sd=np.sqrt(np.maximum(np.einsum(

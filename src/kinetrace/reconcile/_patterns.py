@@ -12,6 +12,7 @@ from __future__ import annotations
 import numpy as np
 
 from ._errors import ReconciliationError
+from ._compiled import input_status
 from ._kernel import _mv, wls_kernel
 
 MEASURED, MISSING, FIXED = 0, 1, 2
@@ -31,19 +32,21 @@ def check_inputs(y, sigma, names):
         raise ReconciliationError(
             f"sigma of shape {np.shape(sigma)} does not match measurements of shape {(T, n)}"
         ) from None
-    finite_y = np.isfinite(y)
-    if np.any(np.isinf(y)):
+    y = np.ascontiguousarray(y)
+    sigma = np.ascontiguousarray(sigma)
+    status = np.empty((T, n), np.int8)
+    n_inf, n_bad = input_status(y, sigma, status)
+    if n_inf:
         t, j = np.argwhere(np.isinf(y))[0]
         raise ReconciliationError(f"measurement of {names[j]!r} at step {t} is infinite; use NaN for missing")
-    bad = finite_y & ~(np.isfinite(sigma) & (sigma >= 0))
-    if bad.any():
+    if n_bad:
+        bad = np.isfinite(y) & ~(np.isfinite(sigma) & (sigma >= 0))
         t, j = np.argwhere(bad)[0]
         raise ReconciliationError(
             f"sigma of {names[j]!r} at step {t} is {sigma[t, j]!r}; allowed: finite and >= 0 "
-            f"(0 = known exactly) [{int(bad.sum())} bad entries in all]"
+            f"(0 = known exactly) [{n_bad} bad entries in all]"
         )
-    status = np.where(~finite_y, MISSING, np.where(sigma == 0, FIXED, MEASURED)).astype(np.int8)
-    return y, np.array(sigma), status
+    return y, sigma, status
 
 
 def _cols0(a, idx):
