@@ -142,7 +142,7 @@ class CSTRBalances:
             except ValueError:
                 raise ReconciliationError(f"{nm} has shape {c.shape}; expected ({T}, {ns})") from None
         cols.append(np.zeros((T, 1)) if dvdt is None else np.broadcast_to(np.asarray(dvdt, float), (T,))[:, None])
-        return np.hstack(cols)
+        return _c_order(cols)
 
     # ----- model -----
     def residual(self, v, extent, accumulation=None):
@@ -219,12 +219,12 @@ class CSTRBalances:
             self.check_observable(status)
         T, n = y.shape
         out = _allocate(T, n, len(self.reactions), len(self.constraint_names), cov == "full")
-        rest = np.arange(T)
+        solved = np.zeros(T, bool)
         if cov == "diag":  # the compiled path: steps with nothing missing
             kern = ~np.any(status == MISSING, axis=1)
             if kern.any():
                 solved = self._compiled(y, sigma, accumulation, kern, max_iter, tol, out)
-                rest = np.flatnonzero(~solved)
+        rest = np.flatnonzero(~solved)
         if rest.size:
             groups = group_patterns(status[rest])
             for start in range(0, rest.size, chunk_size):  # loop over blocks of steps, not steps
@@ -250,6 +250,7 @@ class CSTRBalances:
         """Projection ``P`` (p, m) with ``P A_xi = 0``, the extent estimator ``Z`` (nz, m) and
         the observable extents, from the row-equilibrated extent columns (as on the numpy
         path; the scaling is for conditioning only, the solution does not depend on it)."""
+        y, sigma = y[:4096], sigma[:4096]  # a sample is enough for a scaling
         sig_ref = np.sqrt(np.mean(sigma ** 2, axis=0))
         J = self.jacobian(np.mean(y, axis=0, keepdims=True))[0]
         Exi = self.extent_matrix
@@ -348,6 +349,18 @@ class CSTRBalances:
         final["imbalance_scale"] = 0.5 * np.hstack([thr, vol[:, None]])
         final["converged"], final["iterations"] = conv, iters
         return final
+
+
+def _c_order(blocks):
+    """Columns side by side in one C-ordered (T, n) array (``np.hstack`` of broadcast
+    columns would be column-major, and the per-step kernel reads rows)."""
+    T = blocks[0].shape[0]
+    out = np.empty((T, sum(b.shape[1] for b in blocks)))
+    j = 0
+    for b in blocks:
+        out[:, j:j + b.shape[1]] = b
+        j += b.shape[1]
+    return out
 
 
 #: Results the compiled kernel writes, in the order of its arguments.
@@ -463,7 +476,7 @@ def reconcile_cstr(q_in, q_out, c_in, c_out, nu, *, sigma_q_in, sigma_q_out, sig
         return np.broadcast_to(a[:, None] if (k == 1 and a.ndim == 1) else a, (T, k))
 
     try:
-        sig = np.hstack([col(sigma_q_in, 1), col(sigma_q_out, 1), col(sigma_c_in, ns),
+        sig = _c_order([col(sigma_q_in, 1), col(sigma_q_out, 1), col(sigma_c_in, ns),
                          col(sigma_c_out, ns), col(sigma_dvdt if dvdt is not None else 0.0, 1)])
     except ValueError as e:
         raise ReconciliationError(f"a sigma does not match T={T} steps and {ns} species: {e}") from None
