@@ -152,6 +152,38 @@ def from_si(values, unit: str, kind: str) -> np.ndarray | float:
     return float(out) if out.ndim == 0 else out
 
 
+#: Display unit of each SI unit in plain-language messages and reports (stored numbers stay SI).
+DISPLAY_UNITS = {"K": ("degC", "temperature", ".1f"), "m3/s": ("m3/h", "volumetric_flow", ".3g"),
+                 "s": ("h", "time", ".3g"), "mol/s": ("kmol/h", "molar_flow", ".4g")}
+
+
+def display(value, unit: str) -> str:
+    """A value in SI written in its display unit, for messages and reports.
+
+    Parameters
+    ----------
+    value : float
+        The value in the SI unit ``unit``. [SI]
+    unit : str
+        Its SI unit as stored (``"K"``, ``"m3/s"``, ``"s"``, ``"mol/s"``); any other unit is
+        written as it is.
+
+    Returns
+    -------
+    str
+        The value and its display unit.
+
+    >>> display(343.15, "K"), display(1.5e-3, "m3/s"), display(3600.0, "s")
+    ('70.0 degC', '5.4 m3/h', '1 h')
+    >>> display(0.25, "-")
+    '0.25 -'
+    """
+    if unit not in DISPLAY_UNITS or value is None or not np.isfinite(value):
+        return f"{value:.4g} {unit}"
+    disp, kind, spec = DISPLAY_UNITS[unit]
+    return f"{format(float(from_si(value, disp, kind)), spec)} {disp}"
+
+
 def parse_quantity(text: str | float | int, kind: str) -> float:
     """Read a config quantity such as ``"80 degC"`` and return it in SI units of ``kind``.
 

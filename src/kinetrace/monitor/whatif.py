@@ -41,6 +41,7 @@ from scipy import optimize
 
 from kinetrace.config.model import UnitModel
 from kinetrace.errors import KinetraceError
+from kinetrace.units import display
 from kinetrace.monitor._common import CAUTIONS, as_array, as_result
 from kinetrace.monitor._unit import UnitReactions, unit_reactions
 
@@ -230,33 +231,18 @@ def _search(prod, lo: float, hi: float, target: float, n_grid: int = 129):
     return x, float(prod(np.array([x]))[0])
 
 
-#: Display unit of each SI unit in the plain-language messages (the numbers stored stay SI).
-_DISPLAY = {"K": ("degC", "temperature", ".1f"), "m3/s": ("m3/h", "volumetric_flow", ".3g"),
-            "s": ("h", "time", ".3g"), "mol/s": ("kmol/h", "molar_flow", ".4g")}
-
-
-def _show(value, unit: str) -> str:
-    """A value in SI written in its display unit, e.g. 343.15 K -> '70.0 degC'."""
-    from ..units import from_si
-
-    if unit not in _DISPLAY or value is None or not np.isfinite(value):
-        return f"{value:.4g} {unit}"
-    disp, kind, spec = _DISPLAY[unit]
-    return f"{format(float(from_si(value, disp, kind)), spec)} {disp}"
-
-
 def _message(lever: str, feasible: bool, setting, current, limits, unit, production, target, already, extra=""):
     name = _LEVERS[lever][1]
-    rng = f"{_show(limits[0], unit)} to {_show(limits[1], unit)}"
+    rng = f"{display(limits[0], unit)} to {display(limits[1], unit)}"
     if already:
-        return (f"The unit meets its target at the present {name} ({_show(current, unit)}); no change is needed. "
+        return (f"The unit meets its target at the present {name} ({display(current, unit)}); no change is needed. "
                 + extra).strip()
     if feasible:
-        return (f"At today's activity, a {name} of about {_show(setting, unit)} (now {_show(current, unit)}) would "
-                f"restore the target, predicted {_show(production, 'mol/s')} against {_show(target, 'mol/s')}; "
+        return (f"At today's activity, a {name} of about {display(setting, unit)} (now {display(current, unit)}) would "
+                f"restore the target, predicted {display(production, 'mol/s')} against {display(target, 'mol/s')}; "
                 f"this is inside the configured safe range {rng}. " + extra).strip()
     return (f"No {name} inside the configured safe range {rng} restores the target at today's activity: the most "
-            f"the model predicts there is {_show(production, 'mol/s')} against {_show(target, 'mol/s')}. "
+            f"the model predicts there is {display(production, 'mol/s')} against {display(target, 'mol/s')}. "
             + extra).strip()
 
 

@@ -6,6 +6,8 @@ import math
 
 import pandas as pd
 
+from ..units import display
+
 #: Shown with every what-if setting, in the HTML page and in the workbook.
 CAUTIONS = (
     "These settings are estimates from a fitted model, not instructions. Before any change, check it "
@@ -71,13 +73,20 @@ def alarm_sentence(row) -> str:
 
 
 def whatif_sentence(row) -> str:
-    """One what-if lever in plain words, within its safe limits."""
+    """One what-if lever in plain words, within its safe limits, in display units (the
+    workbook keeps the stored SI values).
+
+    >>> whatif_sentence({"lever": "temperature", "unit_of_measure": "K", "safe_low": 323.15,
+    ...                  "safe_high": 348.15, "restores_target": True, "current_value": 335.15,
+    ...                  "proposed_value": 339.65})
+    'Estimated to restore the target: temperature from 62.0 degC to 66.5 degC (safe limits 50.0 degC to 75.0 degC).'
+    """
     lever = LEVER_WORDS.get(row["lever"], row["lever"].replace("_", " "))
     u = row["unit_of_measure"]
-    limits = f"safe limits {sig(row['safe_low'], 5)}–{sig(row['safe_high'], 5)} {u}".rstrip()
+    limits = f"safe limits {display(row['safe_low'], u)} to {display(row['safe_high'], u)}"
     if row["restores_target"]:
-        return (f"Estimated to restore the target: {lever} from {sig(row['current_value'], 5)} to "
-                f"{sig(row['proposed_value'], 5)} {u} ({limits}).")
+        return (f"Estimated to restore the target: {lever} from {display(row['current_value'], u)} to "
+                f"{display(row['proposed_value'], u)} ({limits}).")
     return f"No {lever} within the {limits} is estimated to meet the target."
 
 
