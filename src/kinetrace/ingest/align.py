@@ -151,14 +151,17 @@ def time_weighted_mean(ts: np.ndarray, value: np.ndarray, edges: np.ndarray, max
         end = np.minimum(nxt, ts[a:b] + gap_ns)
         _accumulate(np.clip(ts[a:b], edges[0], edges[-1]), np.clip(end, edges[0], edges[-1]), value[a:b], edges,
                     integ, cover, dv, dc)
-    if dc.any():
-        integ += np.cumsum(dv)[: nb + 1] * step
-        cover += np.cumsum(dc)[: nb + 1] * step
-    integ, cover = integ[:nb], cover[:nb]
+    if dc.any():               # in place: four grid-long temporaries fewer
+        for acc, diff in ((integ, dv), (cover, dc)):
+            np.cumsum(diff, out=diff)
+            diff *= step
+            acc += diff[: nb + 1]
+    del dv, dc
+    mean, cover = integ[:nb], cover[:nb]
     frac = cover / step
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.where(frac >= min_coverage - 1e-12, integ / np.where(cover > 0, cover, 1.0), np.nan)
-    return mean, np.clip(frac, 0.0, 1.0)
+    np.divide(mean, cover, out=mean, where=cover > 0)
+    mean[~(frac >= min_coverage - 1e-12)] = np.nan
+    return mean, np.clip(frac, 0.0, 1.0, out=frac)
 
 
 def sample_mean_carry(ts: np.ndarray, value: np.ndarray, edges: np.ndarray, max_age: float | None
