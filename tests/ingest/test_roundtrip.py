@@ -114,8 +114,9 @@ def test_sqlite(df, tmp_path, reference, monkeypatch, bulk):
 
 
 @pytest.mark.parametrize("encoding", ["UTF-8", "UTF-16le"])
-def test_sqlite_ranges_read_side_by_side_keep_the_rowid_order(tmp_path, monkeypatch, encoding):
-    """Two reader connections give exactly what one gives, out-of-order counts included."""
+def test_sqlite_bulk_path_keeps_the_rowid_order_in_any_encoding(tmp_path, monkeypatch, encoding):
+    """The bulk path (text built inside SQLite) gives exactly what the streamed SELECT gives,
+    out-of-order counts included, in a UTF-8 and a UTF-16 database."""
     import sqlite3
 
     from kinetrace.ingest import sql_source
@@ -128,11 +129,11 @@ def test_sqlite_ranges_read_side_by_side_keep_the_rowid_order(tmp_path, monkeypa
     con.close()
     write_sqlite(shuffled, tmp_path / "h.sqlite")
     got = {}
-    for readers in (1, 2):
-        monkeypatch.setattr(sql_source, "SQLITE_READERS", readers)
+    for bulk in (True, False):
+        monkeypatch.setattr(sql_source, "USE_SQLITE_BULK", bulk)
         cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"], "chunk_rows": 1000}, grid="10 min")
-        got[readers] = read_unit(cfg, "R-220", config_path=tmp_path / "plant.toml")
-    a, b = got[1], got[2]
+        got[bulk] = read_unit(cfg, "R-220", config_path=tmp_path / "plant.toml")
+    a, b = got[True], got[False]
     con = sqlite3.connect(tmp_path / "h.sqlite")
     assert con.execute("PRAGMA encoding").fetchone()[0] == encoding
     con.close()

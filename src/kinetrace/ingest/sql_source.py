@@ -12,9 +12,7 @@ Rows are taken in the order the database returns them (no ORDER BY, which would
 cost a sort of the whole window): ``out_of_order`` then counts arrival order,
 and the repeated-hour ``"infer"`` policy for naive local times relies on it, so
 a historian storing local time should give ``query`` with an ORDER BY on its
-insertion id. SQLite's bulk path reads in rowid (insertion) order: the rowid
-ranges of a database file are read on ``SQLITE_READERS`` read-only connections
-side by side and handed on in order.
+insertion id. SQLite's bulk path reads in rowid (insertion) order.
 
 The connection URL of ``kind = "sql"`` comes from the environment variable
 ``source.url_env``; it is never written to messages or logs (only the
@@ -26,10 +24,6 @@ from __future__ import annotations
 import io
 import os
 import sqlite3
-from collections import deque
-from concurrent.futures import ThreadPoolExecutor
-from queue import Queue
-from urllib.parse import quote
 from datetime import datetime, timezone
 from pathlib import Path
 
@@ -298,11 +292,10 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     # SQLite builds each range's text in memory (and Python copies it): ranges of at most 50,000
     # rows keep that near 5 MB instead of ~20 MB, for about 5 % more time (benchmarks/bench_ingest.py)
     step = min(source.chunk_rows, 50_000)
-    starts = range(lo, hi + 1, step)
-    for k, (text, n) in _range_results(raw, schema, sql, [[a, a + step] + args for a in starts]):
+    for a in range(lo, hi + 1, step):
+        text, n = raw.execute(sql, [a, a + step] + args).fetchone()
         if not n:
             continue
-        a = starts[k]
         buf = pa.py_buffer(text if utf8 else text.encode("utf-8"))
         tab = None
         for types in (fast, text_types):
@@ -325,72 +318,6 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
         counts["rows"] += int(n)
         counts["chunks"] += 1
     return True
-
-
-#: Connections reading SQLite rowid ranges side by side (SQLite formats the rows without the GIL);
-#: 1 reads them one after the other on the caller's connection.
-SQLITE_READERS = min(2, len(os.sched_getaffinity(0)) if hasattr(os, "sched_getaffinity") else (os.cpu_count() or 1))
-
-
-def _database_file(raw: sqlite3.Connection, schema: str) -> str | None:
-    """File of the SQLite database holding the table; None for an in-memory, temporary or attached one."""
-    if schema not in ("", "main"):
-        return None
-    files = {name: file for _, name, file in raw.execute("PRAGMA database_list")}
-    return files.get("main") or None
-
-
-def _range_results(raw: sqlite3.Connection, schema: str, sql: str, params: list):
-    """``(k, row)``: the one-row result of ``sql`` for each parameter list ``params[k]``, in order.
-
-    With more than one reader and a database file, ranges are read on that many read-only
-    connections of their own, at most two ranges ahead of the caller, which parses the
-    results meanwhile; each range is one statement (its own snapshot), as on one connection.
-    """
-    path = _database_file(raw, schema) if SQLITE_READERS > 1 and len(params) > 1 else None
-    conns = []
-    if path is not None:
-        try:
-            for _ in range(SQLITE_READERS):
-                conns.append(sqlite3.connect(f"file:{quote(path)}?mode=ro", uri=True, check_same_thread=False))
-                conns[-1].execute("SELECT 1 FROM sqlite_master LIMIT 1").fetchall()
-        except sqlite3.Error:
-            for c in conns:
-                c.close()
-            conns = []
-    if not conns:
-        for k, p in enumerate(params):
-            yield k, raw.execute(sql, p).fetchone()
-        return
-    free: Queue = Queue()
-    for c in conns:
-        free.put(c)
-
-    def fetch(p):
-        c = free.get()
-        try:
-            return c.execute(sql, p).fetchone()
-        finally:
-            free.put(c)
-
-    try:
-        with ThreadPoolExecutor(len(conns)) as pool:
-            ahead: deque = deque()
-            try:
-                for k, p in enumerate(params):
-                    ahead.append((k, pool.submit(fetch, p)))
-                    if len(ahead) > len(conns):
-                        k0, f = ahead.popleft()
-                        yield k0, f.result()
-                while ahead:
-                    k0, f = ahead.popleft()
-                    yield k0, f.result()
-            finally:
-                for _, f in ahead:
-                    f.cancel()
-    finally:
-        for c in conns:
-            c.close()
 
 
 def _str_array(values) -> pa.Array:
