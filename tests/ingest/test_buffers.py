@@ -27,6 +27,14 @@ def test_growing_array_equals_numpy_concatenate():
     assert len(g) == 0 and out.flags.writeable
 
 
+def test_growing_array_grows_by_copy_while_a_view_is_held():
+    g = GrowingArray(np.int32, capacity=4)
+    g.append(np.arange(4, dtype=np.int32))
+    held = g.view()                       # the map cannot be resized in place now
+    g.append(np.arange(4, 10, dtype=np.int32))
+    assert held.tolist() == [0, 1, 2, 3] and g.take().tolist() == list(range(10))
+
+
 def _collector():
     tag = Tag(tag="T1", role="temperature", unit="K")
     return Collector([tag], Source(kind="csv", path="x"), {"T1"})
