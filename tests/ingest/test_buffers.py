@@ -1,15 +1,19 @@
-"""The per-tag reading buffers: growing memory-mapped arrays and compact time stamps.
+"""The per-tag reading buffers (growing memory-mapped arrays, compact time stamps) and the
+sampling step taken from them.
 
-Reference: numpy's own concatenation of the same chunks (general-purpose library);
+Reference: numpy's own concatenation of the same chunks and its median (general-purpose library);
 time stamps must come back to the nanosecond.
 """
 
 import numpy as np
 import pyarrow as pa
+from hypothesis import given, settings
+from hypothesis import strategies as st
 
 from kinetrace.config.schema import Source, Tag
 from kinetrace.ingest.collect import Collector
 from kinetrace.ingest.growing import GrowingArray
+from kinetrace.ingest.reader import _median_step
 
 S = 10**9
 
@@ -53,3 +57,13 @@ def test_time_stamps_with_fractions_of_a_second_widen_the_buffer_without_loss():
     assert ts.tolist() == ref.tolist() and val.tolist() == [1.0] * 6 and fate.tolist() == [0] * 6
     # handed over: the buffer is empty, its count of readings kept
     assert len(col.buffers[0].ts) == 0 and col.buffers[0].n == 6
+
+
+@settings(max_examples=80, deadline=None)
+@given(st.lists(st.sampled_from([0, 60, 60, 60, 61, 120, 3600]), min_size=1, max_size=3000),
+       st.integers(0, 10))
+def test_median_step_equals_numpy_median(steps, extra):
+    """The hold limit's sampling step: numpy's median of the time differences (reference), exactly."""
+    d = np.array(steps + [7] * extra, dtype=np.int64)
+    ts = np.r_[0, np.cumsum(d)] * S
+    assert _median_step(ts) == float(np.median(np.diff(ts)))
