@@ -107,6 +107,33 @@ def test_frozen_needs_duration_and_readings():
     assert (flag_frozen(t, x, np.zeros(10, np.int8), 3001.0) == FROZEN).sum() == 0
 
 
+def _frozen_by_pandas(t, x, fate, frozen_after, min_readings, floor):
+    """The flat-line rule written with pandas groupby over runs of equal good values (reference)."""
+    good = pd.Series(fate == GOOD)
+    s = pd.DataFrame({"t": t[good.to_numpy()], "x": x[good.to_numpy()]})
+    run = (s["x"] != s["x"].shift()).cumsum()
+    g = s.groupby(run)
+    frozen_run = (g["x"].transform("size") >= min_readings) \
+        & ((g["t"].transform("max") - g["t"].transform("min")) / 1e9 >= frozen_after)
+    if floor is not None:
+        frozen_run &= g["x"].transform("first") > floor
+    out = fate.copy()
+    out[np.flatnonzero(good.to_numpy())[(frozen_run & run.duplicated()).to_numpy()]] = FROZEN
+    return out
+
+
+@settings(max_examples=60, deadline=None)
+@given(st.lists(st.tuples(st.integers(1, 3), st.sampled_from([0.0, 1.0, 2.0]), st.sampled_from([GOOD, GOOD, 4])),
+                min_size=0, max_size=40),
+       st.sampled_from([0.0, 120.0, 300.0]), st.integers(1, 4), st.sampled_from([None, 0.0, 1.0]))
+def test_frozen_rule_equals_pandas_runs(rows, frozen_after, min_readings, floor):
+    t = np.cumsum([dt for dt, _, _ in rows]).astype(np.int64) * 60 * S
+    x = np.array([v for _, v, _ in rows], dtype=float)
+    fate = np.array([f for _, _, f in rows], dtype=np.int8)
+    got = flag_frozen(t, x, fate, frozen_after, min_readings=min_readings, floor=floor)
+    assert got.tolist() == _frozen_by_pandas(t, x, fate, frozen_after, min_readings, floor).tolist()
+
+
 def test_screen_runs_rules_in_order_and_counts_each_reading_once():
     t = np.arange(8) * 60 * S
     x = np.array([5, 5, 99, 5, 5, 5, 5, 5.])

@@ -113,6 +113,36 @@ def test_sqlite(df, tmp_path, reference, monkeypatch, bulk):
     assert got.source_report["chunks"] * 1000 >= got.source_report["rows"] > 0
 
 
+@pytest.mark.parametrize("encoding", ["UTF-8", "UTF-16le"])
+def test_sqlite_bulk_path_keeps_the_rowid_order_in_any_encoding(tmp_path, monkeypatch, encoding):
+    """The bulk path (text built inside SQLite) gives exactly what the streamed SELECT gives,
+    out-of-order counts included, in a UTF-8 and a UTF-16 database."""
+    import sqlite3
+
+    from kinetrace.ingest import sql_source
+
+    day = readings(hours=24, seed=5)
+    shuffled = day.sample(frac=1.0, random_state=11)      # rows stored out of time order
+    con = sqlite3.connect(tmp_path / "h.sqlite")
+    con.execute(f"PRAGMA encoding = '{encoding}'")
+    con.execute("CREATE TABLE notes (text TEXT)")        # the encoding is fixed when the file is first written
+    con.close()
+    write_sqlite(shuffled, tmp_path / "h.sqlite")
+    got = {}
+    for bulk in (True, False):
+        monkeypatch.setattr(sql_source, "USE_SQLITE_BULK", bulk)
+        cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"], "chunk_rows": 1000}, grid="10 min")
+        got[bulk] = read_unit(cfg, "R-220", config_path=tmp_path / "plant.toml")
+    a, b = got[True], got[False]
+    con = sqlite3.connect(tmp_path / "h.sqlite")
+    assert con.execute("PRAGMA encoding").fetchone()[0] == encoding
+    con.close()
+    assert a.source_report["chunks"] > 4 and int(a.quality["out_of_order"].sum()) > 0
+    pd.testing.assert_frame_equal(a.values, b.values, check_exact=True)
+    pd.testing.assert_frame_equal(a.quality, b.quality)
+    pd.testing.assert_frame_equal(a.flagged, b.flagged)
+
+
 def test_sqlite_odd_values_and_texts(tmp_path):
     """Text in a REAL column, commas and quotes in codes, NULLs: both SQLite paths give the same fates."""
     import sqlite3

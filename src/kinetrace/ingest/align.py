@@ -55,7 +55,7 @@ def _bin(t: np.ndarray, edges: np.ndarray) -> np.ndarray:
     d = edges[1] - edges[0] if n > 0 else 0
     if n > 0 and edges[-1] - edges[0] == d * n:
         b = (t - edges[0]) // d
-        return np.clip(b, -1, n)
+        return np.clip(b, -1, n, out=b)
     return np.searchsorted(edges, t, side="right") - 1
 
 
@@ -70,11 +70,14 @@ def _accumulate(start, end, x, edges, integ, cover, dv, dc) -> None:
     """
     nb = len(edges) - 1
     use = end > start
-    start, end, x = start[use], end[use], x[use]
+    if not use.all():             # (masks that keep everything are not applied: no copies)
+        start, end, x = start[use], end[use], x[use]
     if start.size == 0:
         return
-    bs = np.minimum(_bin(start, edges), nb - 1)
-    be = np.minimum(_bin(end, edges), nb)            # interval holding the (exclusive) end
+    bs = _bin(start, edges)
+    np.minimum(bs, nb - 1, out=bs)
+    be = _bin(end, edges)                            # interval holding the (exclusive) end
+    np.minimum(be, nb, out=be)
     lo = int(bs.min())
     m = int(be.max()) - lo + 1
 
@@ -82,11 +85,14 @@ def _accumulate(start, end, x, edges, integ, cover, dv, dc) -> None:
         target[lo:lo + m] += np.bincount(bins - lo, weights=weights, minlength=m)
 
     same = bs == be
-    len_same = (end[same] - start[same]) / 1e9       # float seconds from each interval's own edge
-    add(integ, bs[same], x[same] * len_same)
-    add(cover, bs[same], len_same)
-    cr = ~same
-    bs, be, x, start, end = bs[cr], be[cr], x[cr], start[cr], end[cr]
+    if same.any():
+        len_same = (end[same] - start[same]) / 1e9   # float seconds from each interval's own edge
+        add(integ, bs[same], x[same] * len_same)
+        add(cover, bs[same], len_same)
+        cr = ~same
+        bs, be, x, start, end = bs[cr], be[cr], x[cr], start[cr], end[cr]
+        if bs.size == 0:
+            return
     head = (edges[bs + 1] - start) / 1e9
     tail = (end - edges[np.minimum(be, nb)]) / 1e9
     add(integ, bs, x * head)
@@ -151,14 +157,17 @@ def time_weighted_mean(ts: np.ndarray, value: np.ndarray, edges: np.ndarray, max
         end = np.minimum(nxt, ts[a:b] + gap_ns)
         _accumulate(np.clip(ts[a:b], edges[0], edges[-1]), np.clip(end, edges[0], edges[-1]), value[a:b], edges,
                     integ, cover, dv, dc)
-    if dc.any():
-        integ += np.cumsum(dv)[: nb + 1] * step
-        cover += np.cumsum(dc)[: nb + 1] * step
-    integ, cover = integ[:nb], cover[:nb]
+    if dc.any():               # in place: four grid-long temporaries fewer
+        for acc, diff in ((integ, dv), (cover, dc)):
+            np.cumsum(diff, out=diff)
+            diff *= step
+            acc += diff[: nb + 1]
+    del dv, dc
+    mean, cover = integ[:nb], cover[:nb]
     frac = cover / step
-    with np.errstate(invalid="ignore", divide="ignore"):
-        mean = np.where(frac >= min_coverage - 1e-12, integ / np.where(cover > 0, cover, 1.0), np.nan)
-    return mean, np.clip(frac, 0.0, 1.0)
+    np.divide(mean, cover, out=mean, where=cover > 0)
+    mean[~(frac >= min_coverage - 1e-12)] = np.nan
+    return mean, np.clip(frac, 0.0, 1.0, out=frac)
 
 
 def sample_mean_carry(ts: np.ndarray, value: np.ndarray, edges: np.ndarray, max_age: float | None

@@ -19,6 +19,7 @@ import pyarrow.compute as pc
 
 from ..config.schema import Source, Tag
 from .fates import AMBIGUOUS_TIME, BAD_QUALITY, BAD_TIME, BAD_VALUE, GOOD, NONEXISTENT_TIME
+from .growing import GrowingArray
 from .timestamps import NAT, parse_timestamps
 
 #: At most this many detailed records (file:line, text) are kept per tag and fate.
@@ -27,15 +28,28 @@ MAX_DETAILS = 50
 
 @dataclass
 class TagBuffer:
-    """Readings of one tag as they arrive (file order)."""
+    """Readings of one tag as they arrive (file order), each array one growing memory map."""
 
     tmin: int = NAT                               # earliest / latest time stamp read (any fate but a bad time) [ns]
     tmax: int = NAT
-    ts: list = field(default_factory=list)        # int64 [ns UTC]
-    value: list = field(default_factory=list)     # float64 [tag unit]
-    fate: list = field(default_factory=list)      # int8
+    # time: int32 seconds from 2000 (see _pack_times) until a chunk needs more, then int64 [ns UTC]
+    ts: GrowingArray = field(default_factory=lambda: GrowingArray(np.int32))
+    value: GrowingArray = field(default_factory=lambda: GrowingArray(np.float64))   # [tag unit]
+    fate: GrowingArray = field(default_factory=lambda: GrowingArray(np.int8))
     second: list = field(default_factory=list)    # (positions, int64 second-pass time) for repeated hour
     n: int = 0
+
+    def add_times(self, utc: np.ndarray) -> None:
+        """Append time stamps [ns UTC], packed while every one so far packs without loss."""
+        if self.ts.dtype == np.int32:
+            packed = _pack_times(utc)
+            if packed.dtype == np.int32:
+                self.ts.append(packed)
+                return
+            wide = GrowingArray(np.int64, capacity=max(2 * self.ts.n, len(utc)))
+            wide.append(_unpack_times(self.ts.take()))
+            self.ts = wide
+        self.ts.append(utc)
 
 
 @dataclass
@@ -273,7 +287,7 @@ class Collector:
                 lo_t, hi_t = int(timed.min()), int(timed.max())
                 buf.tmin = lo_t if buf.tmin == NAT else min(buf.tmin, lo_t)
                 buf.tmax = hi_t if buf.tmax == NAT else max(buf.tmax, hi_t)
-            buf.ts.append(_pack_times(utc[r]))
+            buf.add_times(utc[r])
             buf.value.append(vals[r])
             buf.fate.append(f)
             buf.n += b - a
@@ -294,16 +308,14 @@ class Collector:
 
     # -- result ----------------------------------------------------------------------------------
     def arrays(self, i: int) -> tuple[np.ndarray, np.ndarray, np.ndarray, list]:
-        """Concatenated (time [ns], value [tag unit], fate, repeated-hour second-pass times) of tag ``i``."""
+        """Hand over tag ``i``'s (time [ns], value [tag unit], fate, repeated-hour second-pass times).
+
+        The buffer is emptied: its memory goes back to the system as soon as the caller
+        drops the arrays (``buffers[i].n`` still tells how many readings there were).
+        """
         buf = self.buffers[i]
-        if not buf.ts:
-            e = np.empty(0, np.int64)
-            return e, np.empty(0), np.empty(0, np.int8), []
-        ts = np.concatenate([_unpack_times(c) for c in buf.ts])
-        buf.ts = []
-        val, fate = np.concatenate(buf.value), np.concatenate(buf.fate)
-        buf.ts, buf.value, buf.fate = [], [], []
-        return ts, val, fate, buf.second
+        ts = _unpack_times(buf.ts.take())
+        return ts, buf.value.take(), buf.fate.take(), buf.second
 
 
 #: Base of the compact time stamps held while reading: whole seconds from 2000-01-01 UTC in int32
@@ -338,7 +350,9 @@ def _unpack_times(chunk: np.ndarray) -> np.ndarray:
     """Inverse of :func:`_pack_times`: int64 nanoseconds UTC, NaT as ``NAT``."""
     if chunk.dtype == np.int64:
         return chunk
-    out = chunk.astype(np.int64) * 1_000_000_000 + _PACK_BASE
+    out = chunk.astype(np.int64)
+    out *= 1_000_000_000
+    out += _PACK_BASE
     out[chunk == _PACK_NAT] = NAT
     return out
 

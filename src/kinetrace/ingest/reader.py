@@ -71,9 +71,21 @@ def _hold_limit(tag: Tag, source, grid: float, ts: np.ndarray) -> float:
     if source.max_gap is not None:
         return source.max_gap
     if ts.size > 1:
-        med = float(np.median(np.diff(ts))) / 1e9
+        med = _median_step(ts) / 1e9
         return min(max(grid, 5.0 * med), max(grid, DEFAULT_HOLD_CAP))
     return grid
+
+
+def _median_step(ts: np.ndarray) -> float:
+    """``np.median(np.diff(ts))`` exactly; without a selection over all steps when the median is the
+    median of a sample of them (regular sampling, where most steps are equal). [ns]"""
+    d = np.diff(ts)
+    sample = np.sort(d[:: max(1, d.size // 1000)])
+    c = sample[sample.size // 2]
+    below, upto = np.count_nonzero(d < c), np.count_nonzero(d <= c)
+    if below <= (d.size - 1) // 2 and d.size // 2 < upto:    # both middle steps equal c
+        return float(c)
+    return float(np.median(d))
 
 
 def _lookback(unit: Unit, source, grid: float) -> float:
@@ -224,39 +236,42 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     rows = []
     flagged = []
     for i, t in enumerate(u.tags):
+        # one tag at a time, its reading buffers freed before the next: the buffers shrink as the frame fills
         ts, val, fate, second = col.arrays(i)
         ts, fate = _resolve_repeated_hour(ts, fate, second)
         late, ts, (val, fate) = screening.sort_readings(ts, val, fate)
         frozen = None if t.sampling == "lab" else (t.frozen_after if t.frozen_after is not None else src.frozen_after)
         fate = screening.screen(ts, val, fate, valid_range=t.valid_range, max_rate=t.max_rate, frozen_after=frozen)
         shift = np.int64(round(t.dead_time * 1e9))
+        fc = np.bincount(fate, minlength=N_FATES)
+        row = {"rows_read": int(ts.size)}
+        row.update({FATE_NAMES[k]: int(fc[k]) for k in range(N_FATES)})
+        tainted = _tainted(ts, fate, edges, shift)
         g = fate == GOOD
-        tg, xg = ts[g] - shift, scales[t.tag].to_si(val[g])
+        if fc[GOOD] < ts.size:
+            bad = ~g
+            flagged.append((i, ts[bad], val[bad], fate[bad]))
+            del bad
+        tg = ts[g]
+        tg -= shift
+        del ts, fate
+        xg = scales[t.tag].to_si(val[g])
+        del val, g
         if t.sampling == "continuous":
-            v, cov = align.time_weighted_mean(tg, xg, edges, _hold_limit(t, src, grid, tg))
+            v, _ = align.time_weighted_mean(tg, xg, edges, _hold_limit(t, src, grid, tg))
             carried = np.zeros(nb, bool)
         else:
             v, carried = align.sample_mean_carry(tg, xg, edges, t.max_age)
         del tg, xg
-        taint_mask = np.isin(fate, TAINTING)
-        # an interval is tainted when flagged readings make up more than MAX_FLAGGED_SHARE of its
-        # readings: one bad row among sixty leaves a good mean of the other fifty-nine
-        n_flag = align.count_per_interval(ts[taint_mask] - shift, edges)
-        n_all = align.count_per_interval(ts - shift, edges)
-        tainted = n_flag > MAX_FLAGGED_SHARE * np.maximum(n_all, 1)
         values[:, i] = v
-        valid[:, i] = ok = ~np.isnan(v) & ~tainted
-        fc = np.bincount(fate, minlength=N_FATES)
-        row = {"rows_read": int(ts.size)}
-        row.update({FATE_NAMES[k]: int(fc[k]) for k in range(N_FATES)})
+        missing = np.isnan(v)
+        del v
+        valid[:, i] = ok = ~missing & ~tainted
         row.update(outside_window=int(col.outside[i]), out_of_order=int(late), intervals=nb,
-                   missing_intervals=int(np.isnan(v).sum()), carried_intervals=int(carried.sum()),
-                   flagged_intervals=int((tainted & ~np.isnan(v)).sum()), valid_intervals=int(ok.sum()))
+                   missing_intervals=int(missing.sum()), carried_intervals=int(carried.sum()),
+                   flagged_intervals=int((tainted & ~missing).sum()), valid_intervals=int(ok.sum()))
         rows.append(row)
-        bad = ~g
-        if bad.any():
-            flagged.append((i, ts[bad], val[bad], fate[bad]))
-        del ts, val, fate, g, v
+        del missing, carried, tainted, ok
     if not any(r["good"] for r in rows):
         raise IngestError(_source_name(cfg), [Problem(f"unit {u.id}", "no usable readings of any of its tags for "
                                                       f"{_window_text(since_ns, until_ns)}")]
@@ -285,6 +300,29 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
                     flagged=flagged_df, details=details, notes=notes, source_report=report, grid=grid)
     check_unit_data(data)
     return data
+
+
+_TAINT = np.isin(np.arange(N_FATES), TAINTING)
+
+
+def _tainted(ts: np.ndarray, fate: np.ndarray, edges: np.ndarray, shift: int) -> np.ndarray:
+    """Intervals where flagged readings are more than MAX_FLAGGED_SHARE of a tag's readings.
+
+    ``ts`` sorted [ns], ``shift`` the tag's dead time [ns]. One bad row among sixty leaves a
+    good mean of the other fifty-nine; the count of all readings is only taken in intervals
+    that hold a flagged one.
+    """
+    nb = len(edges) - 1
+    out = np.zeros(nb, bool)
+    t_flag = ts[_TAINT[fate]]
+    if t_flag.size == 0:
+        return out
+    n_flag = align.count_per_interval(t_flag - shift, edges)
+    k = np.flatnonzero(n_flag)
+    # readings in [edge_k, edge_k+1) after the shift; readings without a time (NAT) sort first
+    n_all = np.searchsorted(ts, edges[k + 1] + shift) - np.searchsorted(ts, edges[k] + shift)
+    out[k] = n_flag[k] > MAX_FLAGGED_SHARE * np.maximum(n_all, 1)
+    return out
 
 
 def _flagged_frame(names: list[str], flagged: list) -> pd.DataFrame:

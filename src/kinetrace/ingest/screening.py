@@ -44,11 +44,11 @@ def sort_readings(ts: np.ndarray, *arrays: np.ndarray) -> tuple[int, np.ndarray,
     >>> n, t.tolist(), v.tolist()
     (1, [1, 2, 3, 4], [10.0, 20.0, 30.0, 40.0])
     """
-    timed = ts != NAT
-    t = ts[timed]
-    late = int((t[1:] < np.maximum.accumulate(t)[:-1]).sum()) if t.size > 1 else 0
     if ts.size < 2 or bool(np.all(ts[1:] >= ts[:-1])):
-        return late, ts, list(arrays)
+        return 0, ts, list(arrays)             # in order already (readings without a time sort first)
+    t = ts[ts != NAT]
+    late = int((t[1:] < np.maximum.accumulate(t)[:-1]).sum()) if t.size > 1 else 0
+    del t
     order = np.argsort(ts, kind="stable")
     return late, ts[order], [a[order] for a in arrays]
 
@@ -60,6 +60,8 @@ def flag_duplicates(ts: np.ndarray, value: np.ndarray, fate: np.ndarray) -> np.n
     [0, 0, 6, 7, 7]
     """
     fate = fate.copy()
+    if ts.size < 2 or not (ts[1:] == ts[:-1]).any():
+        return fate                        # no two readings share a time stamp
     g = np.flatnonzero(fate == GOOD)
     if g.size < 2:
         return fate
@@ -161,22 +163,25 @@ def flag_frozen(ts: np.ndarray, value: np.ndarray, fate: np.ndarray, frozen_afte
         return fate
     fate = fate.copy()
     g = np.flatnonzero(fate == GOOD)
-    if g.size < min_readings:
+    if g.size < 2:
         return fate
-    t, v = ts[g], value[g]
-    eq = v[1:] == v[:-1]
-    if min_readings >= 3 and not (eq[1:] & eq[:-1]).any():
-        return fate                      # no run of three equal values at all
-    start = np.r_[True, ~eq]
-    gid = np.cumsum(start) - 1
-    first = np.flatnonzero(start)
-    last = np.r_[first[1:] - 1, g.size - 1]
-    length = last - first + 1
-    span = (t[last] - t[first]) / 1e9
-    run_frozen = (length >= min_readings) & (span >= frozen_after)
+    v = value[g]
+    eq = (v[1:] == v[:-1]).view(np.int8)
+    del v
+    # runs of at least two equal consecutive good values: good readings first..last of each run
+    step = np.diff(eq, prepend=np.int8(0), append=np.int8(0))
+    del eq
+    first, last = np.flatnonzero(step == 1), np.flatnonzero(step == -1)
+    del step
+    keep = last - first + 1 >= min_readings
+    first, last = first[keep], last[keep]
+    frozen = (ts[g[last]] - ts[g[first]]) / 1e9 >= frozen_after
     if floor is not None:
-        run_frozen &= v[first] > floor
-    mark = run_frozen[gid] & ~start
+        frozen &= value[g[first]] > floor
+    first, last = first[frozen], last[frozen]
+    # every reading of a frozen run after its first
+    n = last - first
+    mark = np.repeat(first + 1 - (np.cumsum(n) - n), n) + np.arange(int(n.sum()))
     fate[g[mark]] = FROZEN
     return fate
 

@@ -278,8 +278,11 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
         fields.append(ifn(q(c.quality)))
         names.append(c.quality)
     line = " || ',' || ".join(fields)
-    sql = (f"SELECT group_concat(line, char(10)), count(*) FROM (SELECT {line} AS line FROM {tbl} "
-           f"WHERE rowid >= ? AND rowid < ? AND {cond_rowid})")
+    # in a UTF-8 database, CAST AS BLOB hands the text over as bytes (no decoding to str and encoding back)
+    utf8 = raw.execute("PRAGMA encoding").fetchone()[0].upper() == "UTF-8"
+    text_sql = "group_concat(line, char(10))"
+    sql = (f"SELECT {f'CAST({text_sql} AS BLOB)' if utf8 else text_sql}, count(*) FROM (SELECT {line} AS line "
+           f"FROM {tbl} WHERE rowid >= ? AND rowid < ? AND {cond_rowid})")
     d = pa.dictionary(pa.int32(), pa.string())
     fast = {c.timestamp: d, c.tag: d, c.value: pa.float64(), **({c.quality: d} if c.quality else {})}
     text_types = {n: pa.string() for n in names}
@@ -293,7 +296,7 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
         text, n = raw.execute(sql, [a, a + step] + args).fetchone()
         if not n:
             continue
-        buf = pa.py_buffer(text.encode("utf-8"))
+        buf = pa.py_buffer(text if utf8 else text.encode("utf-8"))
         tab = None
         for types in (fast, text_types):
             try:
