@@ -67,11 +67,11 @@ cells = st.one_of(st.none(), st.floats(allow_nan=True, allow_infinity=True), st.
 @settings(max_examples=int(os.environ.get("KT_FUZZ_EXAMPLES", "40")), deadline=None,
           suppress_health_check=[HealthCheck.function_scoped_fixture])
 @given(rows=st.lists(st.tuples(st.one_of(stamps, cells), st.sampled_from(TAGS), st.one_of(values, cells), cells),
-                     max_size=30), bulk=st.booleans())
-def test_random_sqlite_rows_never_crash(tmp_path_factory, rows, bulk):
+                     max_size=30), mode=st.sampled_from(["binary", "group-concat", "streamed-select"]))
+def test_random_sqlite_rows_never_crash(tmp_path_factory, rows, mode):
     import sqlite3
 
-    from kinetrace.ingest import sql_source
+    from .test_roundtrip import sqlite_mode
 
     tmp = tmp_path_factory.mktemp("fuzzdb")
     con = sqlite3.connect(tmp / "h.sqlite")
@@ -80,13 +80,12 @@ def test_random_sqlite_rows_never_crash(tmp_path_factory, rows, bulk):
     con.commit()
     con.close()
     cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"]}, grid="10 min")
-    old = sql_source.USE_SQLITE_BULK
-    sql_source.USE_SQLITE_BULK = bulk
+    old = sqlite_mode(mode)
     try:
         d = read_unit(cfg, "R-220", config_path=tmp / "plant.toml")
     except KinetraceError:
         return
     finally:
-        sql_source.USE_SQLITE_BULK = old
+        sqlite_mode(old)
     q = d.quality
     assert (q[fate_names()].sum(axis=1) == q["rows_read"]).all()

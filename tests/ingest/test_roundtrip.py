@@ -102,24 +102,65 @@ def test_small_blocks_give_the_same_frame(df, tmp_path, reference, monkeypatch):
     _same(_read(tmp_path, {"kind": "csv", "path": "long.csv"}), reference)
 
 
-@pytest.mark.parametrize("bulk", [True, False], ids=["group-concat", "streamed-select"])
-def test_sqlite(df, tmp_path, reference, monkeypatch, bulk):
+#: The three ways of reading SQLite: (bulk by rowid ranges, binary through ADBC first).
+SQLITE_MODES = {"binary": (True, True), "group-concat": (True, False), "streamed-select": (False, False)}
+
+
+def sqlite_mode(mode):
+    """Set the SQLite read path; returns the previous setting (for :func:`restore`)."""
     from kinetrace.ingest import sql_source
 
-    monkeypatch.setattr(sql_source, "USE_SQLITE_BULK", bulk)
+    old = (sql_source.USE_SQLITE_BULK, sql_source.USE_SQLITE_ARROW)
+    sql_source.USE_SQLITE_BULK, sql_source.USE_SQLITE_ARROW = SQLITE_MODES[mode] if isinstance(mode, str) else mode
+    return old
+
+
+@pytest.mark.parametrize("mode", list(SQLITE_MODES))
+def test_sqlite(df, tmp_path, reference, mode):
+    old = sqlite_mode(mode)
     write_sqlite(df, tmp_path / "h.sqlite")
-    got = _read(tmp_path, {"kind": "sqlite", "path": "h.sqlite", "chunk_rows": 1000})
+    try:
+        got = _read(tmp_path, {"kind": "sqlite", "path": "h.sqlite", "chunk_rows": 1000})
+    finally:
+        sqlite_mode(old)
     _same(got, reference)
     assert got.source_report["chunks"] * 1000 >= got.source_report["rows"] > 0
 
 
-@pytest.mark.parametrize("encoding", ["UTF-8", "UTF-16le"])
-def test_sqlite_bulk_path_keeps_the_rowid_order_in_any_encoding(tmp_path, monkeypatch, encoding):
-    """The bulk path (text built inside SQLite) gives exactly what the streamed SELECT gives,
-    out-of-order counts included, in a UTF-8 and a UTF-16 database."""
+def test_sqlite_binary_path_reads_plain_ranges_and_hands_odd_ones_on(tmp_path, monkeypatch):
+    """Ranges of numbers and texts come through ADBC in binary; a range holding a text in the
+    value column is handed to the text path (whose fates the test above checks)."""
     import sqlite3
 
-    from kinetrace.ingest import sql_source
+    from kinetrace.ingest import sql_source, sqlite_arrow
+
+    taken = []
+    original = sqlite_arrow.RangeReader.read
+    monkeypatch.setattr(sqlite_arrow.RangeReader, "read",
+                        lambda self, *a: taken.append(original(self, *a) is not None) or original(self, *a))
+    df = readings(hours=6, seed=2)
+    write_sqlite(df, tmp_path / "h.sqlite")
+    con = sqlite3.connect(tmp_path / "h.sqlite")
+    con.execute("INSERT INTO readings VALUES ('2026-09-01T05:59:30Z', 'CB2:R220_TEMP.F', 'abc', 'OK')")
+    con.commit()
+    con.close()
+    cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"], "chunk_rows": 1000}, grid="10 min")
+    old = sqlite_mode("binary")
+    try:
+        got = read_unit(cfg, "R-220", config_path=tmp_path / "p.toml")
+    finally:
+        sqlite_mode(old)
+    assert len(taken) >= 2 and all(taken[:-1]) and not taken[-1]   # the text is in the last range
+    assert got.quality.loc["CB2:R220_TEMP.F", "bad_value"] == 1
+    assert got.source_report["rows"] == len(df) + 1
+    assert sql_source.USE_SQLITE_ARROW
+
+
+@pytest.mark.parametrize("encoding", ["UTF-8", "UTF-16le"])
+def test_sqlite_bulk_path_keeps_the_rowid_order_in_any_encoding(tmp_path, encoding):
+    """The bulk paths (binary through ADBC, text built inside SQLite) give exactly what the
+    streamed SELECT gives, out-of-order counts included, in a UTF-8 and a UTF-16 database."""
+    import sqlite3
 
     day = readings(hours=24, seed=5)
     shuffled = day.sample(frac=1.0, random_state=11)      # rows stored out of time order
@@ -129,25 +170,28 @@ def test_sqlite_bulk_path_keeps_the_rowid_order_in_any_encoding(tmp_path, monkey
     con.close()
     write_sqlite(shuffled, tmp_path / "h.sqlite")
     got = {}
-    for bulk in (True, False):
-        monkeypatch.setattr(sql_source, "USE_SQLITE_BULK", bulk)
-        cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"], "chunk_rows": 1000}, grid="10 min")
-        got[bulk] = read_unit(cfg, "R-220", config_path=tmp_path / "plant.toml")
-    a, b = got[True], got[False]
+    cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"], "chunk_rows": 1000}, grid="10 min")
+    for mode in SQLITE_MODES:
+        old = sqlite_mode(mode)
+        try:
+            got[mode] = read_unit(cfg, "R-220", config_path=tmp_path / "plant.toml")
+        finally:
+            sqlite_mode(old)
     con = sqlite3.connect(tmp_path / "h.sqlite")
     assert con.execute("PRAGMA encoding").fetchone()[0] == encoding
     con.close()
-    assert a.source_report["chunks"] > 4 and int(a.quality["out_of_order"].sum()) > 0
-    pd.testing.assert_frame_equal(a.values, b.values, check_exact=True)
-    pd.testing.assert_frame_equal(a.quality, b.quality)
-    pd.testing.assert_frame_equal(a.flagged, b.flagged)
+    b = got["streamed-select"]
+    for mode in ("binary", "group-concat"):
+        a = got[mode]
+        assert a.source_report["chunks"] > 4 and int(a.quality["out_of_order"].sum()) > 0
+        pd.testing.assert_frame_equal(a.values, b.values, check_exact=True)
+        pd.testing.assert_frame_equal(a.quality, b.quality)
+        pd.testing.assert_frame_equal(a.flagged, b.flagged)
 
 
 def test_sqlite_odd_values_and_texts(tmp_path):
-    """Text in a REAL column, commas and quotes in codes, NULLs: both SQLite paths give the same fates."""
+    """Text in a REAL column, commas and quotes in codes, NULLs: all SQLite paths give the same fates."""
     import sqlite3
-
-    from kinetrace.ingest import sql_source
 
     df = readings(hours=1, seed=3)
     write_sqlite(df, tmp_path / "h.sqlite")
@@ -163,15 +207,16 @@ def test_sqlite_odd_values_and_texts(tmp_path):
     con.close()
     cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"]}, grid="10 min")
     out = []
-    for bulk in (True, False):
-        sql_source.USE_SQLITE_BULK = bulk
+    for mode in SQLITE_MODES:
+        old = sqlite_mode(mode)
         try:
             out.append(read_unit(cfg, "R-220", config_path=tmp_path / "p.toml"))
         finally:
-            sql_source.USE_SQLITE_BULK = True
-    a, b = out
-    pd.testing.assert_frame_equal(a.quality, b.quality)
-    pd.testing.assert_frame_equal(a.values, b.values)
+            sqlite_mode(old)
+    a = out[0]
+    for x in out[1:]:
+        pd.testing.assert_frame_equal(out[0].quality, x.quality)
+        pd.testing.assert_frame_equal(out[0].values, x.values)
     q = a.quality.loc["CB2:R220_TEMP.F"]
     # abc; BAD and a missing code; no time; 1e308 and 3 degF outside [32, 300]
     assert (q["bad_value"], q["bad_quality_code"], q["bad_timestamp"], q["out_of_range"]) == (1, 2, 1, 2)

@@ -36,12 +36,16 @@ import sqlalchemy as sa
 from ..config.schema import Source
 from ..errors import ConfigError, IngestError, Problem
 from .collect import Collector
+from .sqlite_arrow import RangeReader
 from .timestamps import NAT
 
 #: Stream PostgreSQL (psycopg 3) reads with COPY ... TO STDOUT; False uses the generic streamed SELECT.
 USE_COPY = True
-#: Let SQLite write each chunk as CSV text (group_concat over a rowid range); False uses the generic SELECT.
+#: Read SQLite by rowid ranges (binary through ADBC where it can, else each range written by SQLite as
+#: CSV text); False uses the generic SELECT.
 USE_SQLITE_BULK = True
+#: In the SQLite bulk path, read the ranges in binary through the ADBC SQLite driver first.
+USE_SQLITE_ARROW = True
 
 
 def source_url(source: Source, base_dir: Path | None = None) -> tuple[sa.URL, str]:
@@ -292,10 +296,14 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     # SQLite builds each range's text in memory (and Python copies it): ranges of at most 50,000
     # rows keep that near 5 MB instead of ~20 MB, for about 5 % more time (benchmarks/bench_ingest.py)
     step = min(source.chunk_rows, 50_000)
-    for a in range(lo, hi + 1, step):
-        text, n = raw.execute(sql, [a, a + step] + args).fetchone()
+    plain = (f"SELECT {ts}, {tg}, {val}{', ' + q(c.quality) if c.quality else ''} FROM {tbl} "
+             f"WHERE rowid >= ? AND rowid < ? AND {cond_rowid}")
+    def text_range(range_args):
+        """The range written by SQLite as CSV text and parsed by pyarrow (row by row where
+        the text does not parse as the expected CSV)."""
+        text, n = raw.execute(sql, range_args).fetchone()
         if not n:
-            continue
+            return
         buf = pa.py_buffer(text if utf8 else text.encode("utf-8"))
         tab = None
         for types in (fast, text_types):
@@ -308,15 +316,32 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
                 continue
         if tab is None or tab.num_rows != n:
             # a text with a comma, quote or line break: read this rowid range row by row instead
-            cur = raw.execute(f"SELECT {ts}, {tg}, {val}{', ' + q(c.quality) if c.quality else ''} FROM {tbl} "
-                              f"WHERE rowid >= ? AND rowid < ? AND {cond_rowid}", [a, a + step] + args)
-            _add_rows(collector, names, cur.fetchall(), source, tags, None)
+            _add_rows(collector, names, raw.execute(plain, range_args).fetchall(), source, tags, None)
         else:
             tab = tab.unify_dictionaries()
             by = {h: tab.column(h).combine_chunks() for h in names}
             collector.add(*_columns(collector, by, source, tags, None))
         counts["rows"] += int(n)
         counts["chunks"] += 1
+
+    database = conn.engine.url.database or ""
+    if database.startswith("file:"):  # a URI filename, as source_url writes for a read-only file
+        database = database[len("file:"):]
+    binary = RangeReader(database, step) if USE_SQLITE_ARROW and RangeReader.available(database) else None
+    try:
+        for a in range(lo, hi + 1, step):
+            by = None if binary is None else binary.read(plain, [a, a + step] + args, names,
+                                                         [n for n in names if n != c.value])
+            if by is not None:
+                if len(by[c.value]):
+                    collector.add(*_columns(collector, by, source, tags, None))
+                    counts["rows"] += len(by[c.value])
+                    counts["chunks"] += 1
+                continue
+            text_range([a, a + step] + args)
+    finally:
+        if binary is not None:
+            binary.close()
     return True
 
 

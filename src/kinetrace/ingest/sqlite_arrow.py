@@ -1,0 +1,82 @@
+"""Binary reads of SQLite rowid ranges as Arrow columns (ADBC SQLite driver).
+
+SQLite hands REAL values over as doubles and text as UTF-8, with no text round trip
+for the numbers. The driver infers each column's type from the rows of a batch, so every
+range is read as exactly one batch; a range whose columns do not come back with the types
+the ingest expects (a text in the value column, a number in the time column, ...) is
+refused here and the caller reads it by its text path, which flags such readings one by
+one. Nothing is lost either way: a range is either taken whole from here or not at all.
+"""
+
+from __future__ import annotations
+
+from pathlib import Path
+
+import pyarrow as pa
+import pyarrow.compute as pc
+
+try:  # a declared dependency; without it the text path is used
+    import adbc_driver_sqlite.dbapi as _adbc
+except ImportError:  # pragma: no cover - exercised only where the driver is missing
+    _adbc = None
+
+#: The ADBC option that sets the rows per batch (and so the rows its type inference sees).
+_BATCH_ROWS = "adbc.sqlite.query.batch_rows"
+
+
+class RangeReader:
+    """Read rowid ranges of one SQLite database file through ADBC, read-only.
+
+    Parameters
+    ----------
+    path : str or Path
+        The database file.
+    rows_per_range : int
+        Most rows one range can hold (its rowid span); the batch size is set to it so
+        that a range comes back as one batch.
+    """
+
+    def __init__(self, path, rows_per_range: int):
+        uri = Path(path).resolve().as_uri() + "?mode=ro"
+        self._conn = _adbc.connect(uri)
+        self._rows = int(rows_per_range)
+
+    @staticmethod
+    def available(database: str | None) -> bool:
+        """Whether a file database can be read this way (driver installed, not in memory)."""
+        return _adbc is not None and bool(database) and database != ":memory:" and Path(database).is_file()
+
+    def read(self, sql: str, args: list, names: list[str], text_names: list[str]) -> dict | None:
+        """Columns of one range keyed by ``names``, or None where a column's type is not the
+        expected one (numbers for the value column, text for ``text_names``) or the driver
+        fails; empty strings become nulls, as on the text path."""
+        try:
+            cur = self._conn.cursor()
+            try:
+                cur.adbc_statement.set_options(**{_BATCH_ROWS: str(self._rows + 1)})
+                cur.execute(sql, args)
+                table = cur.fetch_arrow_table()
+            finally:
+                cur.close()
+        except Exception:  # noqa: BLE001 - any driver problem: the caller's text path reads the range
+            return None
+        out = {}
+        for name, col in zip(names, table.columns):
+            col = col.combine_chunks() if isinstance(col, pa.ChunkedArray) else col
+            t = col.type
+            if name in text_names:
+                if pa.types.is_null(t):
+                    col = pa.nulls(len(col), pa.string())
+                elif not pa.types.is_string(t):
+                    return None
+                elif pc.any(pc.equal(col, "")).as_py():
+                    col = pc.if_else(pc.equal(col, ""), pa.scalar(None, pa.string()), col)
+            elif pa.types.is_null(t) or pa.types.is_integer(t):
+                col = pc.cast(col, pa.float64())
+            elif not pa.types.is_floating(t):
+                return None
+            out[name] = col
+        return out
+
+    def close(self) -> None:
+        self._conn.close()
