@@ -12,13 +12,9 @@ from __future__ import annotations
 
 from pathlib import Path
 
+import adbc_driver_sqlite.dbapi as _adbc
 import pyarrow as pa
 import pyarrow.compute as pc
-
-try:  # a declared dependency; without it the text path is used
-    import adbc_driver_sqlite.dbapi as _adbc
-except ImportError:  # pragma: no cover - exercised only where the driver is missing
-    _adbc = None
 
 #: The ADBC option that sets the rows per batch (and so the rows its type inference sees).
 _BATCH_ROWS = "adbc.sqlite.query.batch_rows"
@@ -43,8 +39,8 @@ class RangeReader:
 
     @staticmethod
     def available(database: str | None) -> bool:
-        """Whether a file database can be read this way (driver installed, not in memory)."""
-        return _adbc is not None and bool(database) and database != ":memory:" and Path(database).is_file()
+        """Whether the database is a file (not in memory), which this reader can open."""
+        return bool(database) and database != ":memory:" and Path(database).is_file()
 
     def read(self, sql: str, args: list, names: list[str], text_names: list[str]) -> dict | None:
         """Columns of one range keyed by ``names``, or None where a column's type is not the

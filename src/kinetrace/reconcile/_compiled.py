@@ -356,7 +356,7 @@ def _statistics(Y, VAR, A, W, Exi, obs, ZN, B, J, Sinv, R, LAM, SB, Mx, OBJ, VA,
 
 @nb.njit(cache=True, nogil=True, fastmath=_FM, error_model="numpy")
 def _write(t0, kk, Y, VAR, obs, XN, ZN, VZ, OBJ, VA, CN, ISD, IMB, ISC, conv, iters, dofv,
-           x_out, adjustment, z_out, var_x, var_adj, var_z, redundant, objective, dof,
+           x_out, z_out, var_x, var_adj, var_z, redundant, objective, dof,
            imbalance, imbalance_sd, imbalance_scale, converged, iterations):
     """Lanes ``0..kk`` into rows ``t0..t0+kk`` of the outputs (time first)."""
     n = Y.shape[0]
@@ -371,7 +371,6 @@ def _write(t0, kk, Y, VAR, obs, XN, ZN, VZ, OBJ, VA, CN, ISD, IMB, ISC, conv, it
         cmax = 0.0
         for j in range(n):
             x_out[t, j] = XN[j, k]
-            adjustment[t, j] = XN[j, k] - Y[j, k]
             var_adj[t, j] = VA[j, k]
             var_x[t, j] = VAR[j, k] - VA[j, k]
             cmax = max(cmax, CN[j, k])
@@ -389,7 +388,7 @@ def _write(t0, kk, Y, VAR, obs, XN, ZN, VZ, OBJ, VA, CN, ISD, IMB, ISC, conv, it
 
 @nb.njit(cache=True, parallel=True, fastmath=_FM, error_model="numpy")
 def cstr_kernel(y, sigma, acc, has_acc, W, PW, Pvol, Z, Exi, obs, max_iter, tol,
-                x_out, adjustment, z_out, var_x, var_adj, var_z, redundant, objective, dof,
+                x_out, z_out, var_x, var_adj, var_z, redundant, objective, dof,
                 imbalance, imbalance_sd, imbalance_scale, converged, iterations, ok):
     """Reconcile every step of ``y`` (T, n); see the module docstring.
 
@@ -497,7 +496,7 @@ def cstr_kernel(y, sigma, acc, has_acc, W, PW, Pvol, Z, Exi, obs, max_iter, tol,
             _var_z(VAR, Z, J, B, Sinv, G, Kz, VZ)
             _statistics(Y, VAR, A, W, Exi, obs, ZN, B, J, Sinv, R, LAM, SB, Mx, OBJ, VA, CN, ISD, IMB, ISC)
             _write(t0, kk, Y, VAR, obs, XN, ZN, VZ, OBJ, VA, CN, ISD, IMB, ISC, conv, iters, p,
-                   x_out, adjustment, z_out, var_x, var_adj, var_z, redundant, objective, dof,
+                   x_out, z_out, var_x, var_adj, var_z, redundant, objective, dof,
                    imbalance, imbalance_sd, imbalance_scale, converged, iterations)
             for k in range(kk):
                 ok[t0 + k] = good[k]

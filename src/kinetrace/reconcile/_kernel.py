@@ -60,6 +60,15 @@ def _projection(azs):
         yield idx, P, pinv, observable
 
 
+def row_scale(A, Az, sig_ref):
+    """Scale of each constraint row, for conditioning only (the solution does not depend on
+    it): the norm of its measured coefficients times typical sigmas ``sig_ref``, else of its
+    unmeasured coefficients, else 1. ``A`` (m, n), ``Az`` (m, nz), ``sig_ref`` (n,)."""
+    rs = np.linalg.norm(A * sig_ref, axis=1)
+    alt = np.linalg.norm(Az, axis=1)
+    return np.where(rs > 0, rs, np.where(alt > 0, alt, 1.0))
+
+
 _CACHE: dict = {}
 
 
@@ -231,10 +240,7 @@ def wls_kernel(y, var, A, Az=None, b=None, full_cov=False, minimal=False):
     b = np.zeros((m, 1)) if b is None else b
 
     # Row equilibration (numerical conditioning only; the solution does not depend on it).
-    sig_ref = np.sqrt(var.mean(axis=1))
-    rs = np.linalg.norm(A[:, :, 0] * sig_ref, axis=1)
-    alt = np.linalg.norm(Az[:, :, 0], axis=1)
-    rs = np.where(rs > 0, rs, np.where(alt > 0, alt, 1.0))
+    rs = row_scale(A[:, :, 0], Az[:, :, 0], np.sqrt(var.mean(axis=1)))
     As, Azs, bs = A / rs[:, None, None], Az / rs[:, None, None], b / rs[:, None]
 
     keys = ("x", "z") if minimal else (

@@ -26,9 +26,7 @@ def build_result(y, sigma, status, out, names, unknown_names, constraint_names,
     """Wrap the arrays of :func:`._patterns.solve_patterns` in a :class:`Reconciliation`."""
     T = y.shape[0]
     measured = status == 0
-    adj = out.get("adjustment")
-    if adj is None:
-        adj = np.where(measured | (status == 2), out["x"] - y, np.nan)
+    adj = np.where(measured | (status == 2), out["x"] - y, np.nan)
     return Reconciliation(
         y=y, sigma=sigma, x=out["x"], var_x=out["var_x"], adjustment=adj,
         var_adjustment=out["var_adj"], z=out["z"], var_z=out["var_z"], measured=measured,
