@@ -82,8 +82,20 @@ class Source(_Strict):
     chunk_rows: int = Field(200_000, ge=1000)        # rows per streamed chunk
     dst_ambiguous: Literal["infer", "daylight", "standard", "flag"] = "infer"  # repeated local hour
     dst_missing: Literal["flag", "shift"] = "flag"   # local times in the skipped hour
+    time_format: str | None = None            # strftime pattern, or "unix_s" / "unix_ms" / "spreadsheet_days"
+    quality_match: Literal["exact", "folded"] = "exact"   # "folded": codes compared trimmed and case-folded
+    max_line_bytes: int = Field(4 << 20, ge=1024)          # a longer CSV line is a counted bad row [bytes]
+    max_decompressed_bytes: int = Field(64 << 30, ge=1 << 20)   # most bytes one gzip file may expand to
     frozen_after: Duration | None = 14400.0   # default flat-line limit of continuous/analyzer tags [s]
     max_gap: Duration | None = None           # default hold limit of continuous tags [s] (None: 3 grid steps)
+
+
+    @field_validator("time_format")
+    @classmethod
+    def _time_format(cls, v):
+        from ..ingest.timeformats import check_time_format
+
+        return check_time_format(v)
 
 
 class Store(_Strict):

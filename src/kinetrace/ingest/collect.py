@@ -20,10 +20,15 @@ import pyarrow.compute as pc
 from ..config.schema import Source, Tag
 from .fates import AMBIGUOUS_TIME, BAD_QUALITY, BAD_TIME, BAD_VALUE, GOOD, NONEXISTENT_TIME
 from .growing import GrowingArray
-from .timestamps import NAT, parse_timestamps
+from .timeformats import OK, UNDECIDED, _order_hint, explain, read_stamps
+from .timestamps import NAT, place
 
 #: At most this many detailed records (file:line, text) are kept per tag and fate.
 MAX_DETAILS = 50
+#: Most readings held back while no stamp has decided whether numeric dates are day-first or month-first.
+MAX_PENDING_ROWS = 2_000_000
+#: ``parse_times`` result of a batch whose stamps all read both day-first and month-first (held back).
+PENDING = "pending"
 
 
 @dataclass
@@ -92,8 +97,10 @@ def to_float(values: pa.Array, decimal: str = ".") -> tuple[np.ndarray, np.ndarr
 
 def subset_parsed(parsed, rows: np.ndarray):
     """The result of :meth:`Collector.parse_times` for a subset of its rows."""
-    utc, status, second, uniq, codes = parsed
-    return utc[rows], status[rows], second[rows], uniq, (codes[rows] if codes is not None else None)
+    if parsed is PENDING:
+        return PENDING
+    utc, status, second, uniq, codes, reasons = parsed
+    return utc[rows], status[rows], second[rows], uniq, (codes[rows] if codes is not None else None), reasons
 
 
 def _codes(arr: pa.Array, as_arrow: bool = False) -> tuple[np.ndarray, list]:
@@ -140,6 +147,11 @@ class Collector:
         self.details: list[Detail] = []
         self._ndetail: Counter = Counter()
         self.notes: list[tuple[str, str]] = []
+        # naive stamps are wall time of the source's zone; a native SQL time type without zone is UTC
+        self.zone = source.timezone or ("UTC" if source.kind != "csv" and source.time_column == "native" else None)
+        self.date_order: str | None = None     # numeric dates: "day_first" / "month_first", once a stamp decides
+        self._pending: list[tuple] = []        # batches held back until the order is decided
+        self._pending_rows = 0
 
     # -- batches -------------------------------------------------------------------------------
     def tag_index(self, names: list) -> np.ndarray:
@@ -155,17 +167,22 @@ class Collector:
         return out
 
     def parse_times(self, ts: pa.Array):
-        """Parse a batch's time stamps once: (utc [ns], status, second-pass utc [ns], texts, codes)."""
-        if pa.types.is_timestamp(ts.type):
+        """Parse a batch's time stamps once: (utc [ns], status, second-pass utc [ns], texts, codes, reasons),
+        or :data:`PENDING` when every readable stamp is a numeric date that reads both day-first and
+        month-first and no stamp so far has decided the order."""
+        if pa.types.is_timestamp(ts.type) and (ts.type.tz is not None or self.zone in (None, "UTC")):
             t = pc.cast(ts, pa.timestamp("ns", tz=ts.type.tz or "UTC")) if ts.type.unit != "ns" else ts
             utc = t.cast(pa.int64()).to_numpy(zero_copy_only=False)
             utc = np.where(t.is_null().to_numpy(zero_copy_only=False), NAT, utc).astype(np.int64)
-            return utc, np.where(utc == NAT, BAD_TIME, GOOD).astype(np.int8), utc, None, None
+            return utc, np.where(utc == NAT, BAD_TIME, GOOD).astype(np.int8), utc, None, None, None
         if not (pa.types.is_string(ts.type) or pa.types.is_large_string(ts.type) or pa.types.is_dictionary(ts.type)):
+            if pa.types.is_timestamp(ts.type):     # naive native times of a local zone: placed as wall time
+                ts = pc.strftime(ts, format="%Y-%m-%dT%H:%M:%S.%f")
             ts = pc.cast(ts, pa.string())
         codes, dictionary = _codes(ts, as_arrow=True)
+        fmt = self.source.time_format
         fast = None
-        if self.source.timezone is None:
+        if self.zone is None and fmt is None:
             try:   # every distinct text ISO 8601 with an offset: pyarrow parses them all at once
                 fast = pc.cast(dictionary, pa.timestamp("ns", tz="UTC"))
             except (pa.ArrowInvalid, pa.ArrowNotImplementedError):
@@ -175,11 +192,19 @@ class Collector:
             u_utc = fast.cast(pa.int64()).to_numpy(zero_copy_only=False)
             u_st = np.zeros(len(dictionary), np.int8)
             u_sec = u_utc
+            u_reason = None
         else:
-            u_utc, u_st, u_sec = parse_timestamps(uniq, self.source.timezone, dst_ambiguous=self.source.dst_ambiguous,
-                                                  dst_missing=self.source.dst_missing)
+            st = read_stamps(uniq, fmt, self.date_order)
+            ok = st.reason == OK
+            if self.date_order is None and st.order is not None:
+                self.date_order = st.order
+            elif st.order is None and (st.reason == UNDECIDED).any() and not ok.any():
+                return PENDING
+            u_utc, u_st, u_sec = place(st.ns, st.aware & ok, ~st.aware & ok, self.zone,
+                                       dst_ambiguous=self.source.dst_ambiguous, dst_missing=self.source.dst_missing)
+            u_reason = st.reason
         u_utc, u_st, u_sec = np.r_[u_utc, NAT], np.r_[u_st, BAD_TIME].astype(np.int8), np.r_[u_sec, NAT]
-        return u_utc[codes], u_st[codes], u_sec[codes], uniq, codes
+        return u_utc[codes], u_st[codes], u_sec[codes], uniq, codes, u_reason
 
     def add(self, tag, ts, value, quality=None, *, locate=None, decimal: str = ".", parsed=None) -> None:
         """Add one batch.
@@ -202,6 +227,13 @@ class Collector:
         n = len(ts)
         if n == 0:
             return
+        if parsed is None:
+            parsed = self.parse_times(ts)
+        if parsed is PENDING:
+            self._hold(tag, ts, value, quality, locate, decimal)
+            return
+        if self._pending:
+            self._replay()
         self.rows_total += n
         if isinstance(tag, str):
             ti = self.tag_index([tag])[0]
@@ -233,9 +265,7 @@ class Collector:
             tix = tix[keep]
         else:
             keep = None
-        if parsed is None:
-            parsed = self.parse_times(ts)
-        utc, status, second, uniq, codes = parsed
+        utc, status, second, uniq, codes, reasons = parsed
         if keep is not None:
             utc, status, second = utc[keep], status[keep], second[keep]
             codes = codes[keep] if codes is not None else None
@@ -244,8 +274,8 @@ class Collector:
                 rows = np.flatnonzero(status == fate_code)
                 if rows.size:
                     self._detail_rows(rows, tix, fate_code, keep, locate,
-                                      lambda r, f=fate_code: _bad_time_text(uniq, codes[r] if codes is not None else -1,
-                                                                            self.source.timezone, f))
+                                      lambda r, f=fate_code: self._bad_time_text(uniq, codes[r] if codes is not None else -1,
+                                                                                 reasons, f))
         vals, unreadable = to_float(value, decimal)
         fate = status.copy()
         if quality is not None:
@@ -291,6 +321,58 @@ class Collector:
             buf.value.append(vals[r])
             buf.fate.append(f)
             buf.n += b - a
+
+    def _hold(self, tag, ts, value, quality, locate, decimal) -> None:
+        """Hold a batch back until a later stamp decides the numeric-date order (file order is kept)."""
+        self._pending.append((tag, ts, value, quality, locate, decimal))
+        self._pending_rows += len(ts)
+        if self._pending_rows > MAX_PENDING_ROWS:
+            self.refuse_undecided()
+
+    def _replay(self) -> None:
+        held, self._pending, self._pending_rows = self._pending, [], 0
+        for tag, ts, value, quality, locate, decimal in held:
+            self.add(tag, ts, value, quality, locate=locate, decimal=decimal)
+
+    def refuse_undecided(self, source_name: str = "source") -> None:
+        """Raise the refusal of stamps that read both day-first and month-first throughout (if any are held)."""
+        if not self._pending:
+            return
+        from ..errors import IngestError, Problem
+
+        samples, seen = [], {}
+        for tag, ts, value, quality, locate, decimal in self._pending:
+            texts = (ts.cast(pa.string()) if pa.types.is_dictionary(ts.type) else ts).to_pylist()
+            for r, t in enumerate(texts):
+                if t and t not in seen and len(samples) < 3:
+                    seen[t] = None
+                    samples.append((f"{locate([r])[0]}: " if locate is not None else "") + repr(t))
+            if len(samples) >= 3:
+                break
+        first = next(iter(seen), "")
+        n = self._pending_rows
+        self._pending, self._pending_rows = [], 0
+        raise IngestError(source_name, [Problem("time stamps", (
+            f"every time stamp read ({n} readings) reads both day-first and month-first, so the day and month "
+            f"cannot be told apart: {'; '.join(samples)}; set source.time_format = {_order_hint(first)}"))])
+
+    def finish(self, source_name: str = "source") -> None:
+        """End of the source: refuse what is still held back (see :meth:`refuse_undecided`)."""
+        self.refuse_undecided(source_name)
+
+    def _bad_time_text(self, uniq, code, reasons, fate=BAD_TIME) -> str:
+        text = uniq[int(code)] if (uniq is not None and code >= 0) else None
+        timezone = self.zone
+        if fate == NONEXISTENT_TIME:
+            return (f"local time {text!r} does not exist in {timezone} (skipped by the daylight-saving change); "
+                    "set source.dst_missing = 'shift' to read it with the offset before the change")
+        reason = int(reasons[int(code)]) if (reasons is not None and code >= 0) else None
+        if text is None or (isinstance(text, str) and not text.strip()):
+            return "time stamp is empty"
+        if reason == OK and timezone is None:
+            return (f"time stamp {text!r} has no UTC offset and source.timezone is not set "
+                    "(give ISO 8601 with 'Z' or an offset, or declare the IANA zone of local time)")
+        return explain(text, reason if reason is not None else 2, self.source.time_format, self.date_order)
 
     def _detail_rows(self, rows, tix, fate, keep, locate, message) -> None:
         for r in rows:
@@ -355,22 +437,3 @@ def _unpack_times(chunk: np.ndarray) -> np.ndarray:
     out += _PACK_BASE
     out[chunk == _PACK_NAT] = NAT
     return out
-
-
-def _bad_time_text(uniq, code, timezone, fate=BAD_TIME) -> str:
-    text = uniq[int(code)] if (uniq is not None and code >= 0) else None
-    if fate == NONEXISTENT_TIME:
-        return (f"local time {text!r} does not exist in {timezone} (skipped by the daylight-saving change); "
-                "set source.dst_missing = 'shift' to read it with the offset before the change")
-    if text is None or (isinstance(text, str) and not text.strip()):
-        return "time stamp is empty"
-    try:
-        import pandas as pd
-
-        pd.to_datetime(text, format="ISO8601")
-    except (ValueError, TypeError):
-        return f"time stamp {text!r} is not ISO 8601 (e.g. 2026-09-01T06:00:00Z)"
-    if timezone is None:
-        return (f"time stamp {text!r} has no UTC offset and source.timezone is not set "
-                "(give ISO 8601 with 'Z' or an offset, or declare the IANA zone of local time)")
-    return f"time stamp {text!r} is not ISO 8601 (e.g. 2026-09-01T06:00:00Z)"

@@ -28,7 +28,7 @@ from . import align, screening
 from .collect import Collector
 from .conversion import unit_scales
 from .csv_source import read_csv_source
-from .fates import (AMBIGUOUS_TIME, BAD_QUALITY, BAD_VALUE, CONFLICT, FATE_NAMES, FROZEN, GOOD, N_FATES,
+from .fates import (AMBIGUOUS_TIME, BAD_QUALITY, BAD_TIME, NONEXISTENT_TIME, BAD_VALUE, CONFLICT, FATE_NAMES, FROZEN, GOOD, N_FATES,
                     OUT_OF_RANGE, SPIKE)
 from .sql_source import read_sql_source
 from .timestamps import NAT, place_repeated_hour
@@ -154,6 +154,7 @@ def read_unit(cfg: PlantConfig, unit: UnitModel | Unit | str, *, config_path, si
         report = read_csv_source(resolve_path(config_path, src.path), src, col, {t.tag: t for t in u.tags})
     else:
         report = read_sql_source(src, col, [t.tag for t in u.tags], lo, hi, base_dir=base, engine=engine)
+    col.finish(_source_name(cfg))
     _release_memory()
     return assemble(cfg, u, model, scales, col, report, grid=grid, since_ns=since_ns, until_ns=until_ns,
                     complete_only=complete_only)
@@ -222,7 +223,7 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
                                     "(check the tag name against the historian)"))
     if first == NAT and not problems:
         problems.append(Problem(f"unit {u.id}", f"no readings with a usable time stamp for "
-                                f"{_window_text(since_ns, until_ns)}"))
+                                f"{_window_text(since_ns, until_ns)}{_rejected_stamps(col)}"))
     if problems:
         raise IngestError(_source_name(cfg), problems + [Problem(w, m) for w, m in col.notes[:20]])
     edges = align.grid_edges(first, last, grid)
@@ -372,6 +373,18 @@ def _required(u: Unit, model: UnitModel) -> dict:
     if u.volume.level_tag:
         req[("level", None)] = [u.volume.level_tag]
     return req
+
+
+def _rejected_stamps(col: Collector, n: int = 3) -> str:
+    """Up to ``n`` refused time stamps with their line and reason, for a "no usable time stamp" message."""
+    seen, out = set(), []
+    for d in col.details:
+        if d.fate in (BAD_TIME, NONEXISTENT_TIME) and d.message not in seen:
+            seen.add(d.message)
+            out.append(f"{d.where}: {d.message}")
+            if len(out) == n:
+                break
+    return ("; rejected stamps: " + "; ".join(out)) if out else ""
 
 
 def _window_text(since_ns, until_ns) -> str:

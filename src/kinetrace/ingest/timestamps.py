@@ -31,46 +31,20 @@ Everything is stored as UTC.
 
 from __future__ import annotations
 
-import re
-
 import numpy as np
 import pandas as pd
 
 from .fates import AMBIGUOUS_TIME, BAD_TIME, GOOD, NONEXISTENT_TIME
-
-_OFFSET = re.compile(r"(?:[zZ]|[+-]\d\d(?::?\d\d)?)$")
-NAT = np.iinfo(np.int64).min
+from .timeformats import NAT, OK, read_stamps
 
 AMBIGUOUS_POLICIES = ("infer", "daylight", "standard", "flag")
 MISSING_POLICIES = ("flag", "shift")
 
 
-def _to_ns(texts: pd.Series, utc: bool) -> np.ndarray:
-    """ISO 8601 texts -> int64 [ns], NAT where unreadable or outside the ns range (years 1678-2261)."""
-    try:
-        dt = pd.to_datetime(texts, format="ISO8601", utc=utc, errors="coerce")
-        return pd.DatetimeIndex(dt).as_unit("ns").asi8
-    except (OverflowError, ValueError, pd.errors.OutOfBoundsDatetime):
-        return np.array([_to_ns(pd.Series([t], dtype=object), utc)[0] if _one_ok(t, utc) else NAT for t in texts],
-                        dtype=np.int64)
-
-
-def _one_ok(text, utc: bool) -> bool:
-    try:
-        pd.DatetimeIndex(pd.to_datetime(pd.Series([text], dtype=object), format="ISO8601", utc=utc,
-                                        errors="coerce")).as_unit("ns")
-        return True
-    except (OverflowError, ValueError, pd.errors.OutOfBoundsDatetime):
-        return False
-
-
-def _naive_ns(texts: pd.Series) -> np.ndarray:
-    return _to_ns(texts, utc=False)
-
-
 def parse_timestamps(texts, timezone: str | None = None, *, dst_ambiguous: str = "infer",
-                     dst_missing: str = "flag") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
-    """Parse ISO 8601 time stamps to UTC.
+                     dst_missing: str = "flag", time_format: str | None = None,
+                     date_order: str | None = None) -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Parse time stamps to UTC.
 
     Parameters
     ----------
@@ -80,6 +54,10 @@ def parse_timestamps(texts, timezone: str | None = None, *, dst_ambiguous: str =
         IANA zone for time stamps without offset, e.g. ``"Europe/Berlin"``.
     dst_ambiguous, dst_missing : str
         Policies for the repeated and the skipped local hour (module docstring).
+    time_format : str, optional
+        ``source.time_format`` (see :mod:`kinetrace.ingest.timeformats`); None recognises the spelling.
+    date_order : str, optional
+        ``"day_first"`` or ``"month_first"`` for numeric dates; None lets the stamps decide.
 
     Returns
     -------
@@ -99,27 +77,31 @@ def parse_timestamps(texts, timezone: str | None = None, *, dst_ambiguous: str =
     >>> str(pd.Timestamp(utc[0], tz="UTC"))
     '2026-03-29 01:30:00+00:00'
     """
+    st = read_stamps(texts, time_format, date_order)
+    return place(st.ns, st.aware & (st.reason == OK), ~st.aware & (st.reason == OK), timezone,
+                 dst_ambiguous=dst_ambiguous, dst_missing=dst_missing)
+
+
+def place(ns: np.ndarray, aware: np.ndarray, naive: np.ndarray, timezone: str | None, *,
+          dst_ambiguous: str = "infer", dst_missing: str = "flag") -> tuple[np.ndarray, np.ndarray, np.ndarray]:
+    """Place read stamps in UTC: ``aware`` ones are UTC already, ``naive`` ones local wall time of ``timezone``.
+
+    ``ns`` [ns]; returns (utc [ns], status, second-pass utc [ns]) as :func:`parse_timestamps`.
+    A naive stamp without a zone is BAD_TIME.
+    """
     if dst_ambiguous not in AMBIGUOUS_POLICIES:
         raise ValueError(f"dst_ambiguous must be one of {AMBIGUOUS_POLICIES}, not {dst_ambiguous!r}")
     if dst_missing not in MISSING_POLICIES:
         raise ValueError(f"dst_missing must be one of {MISSING_POLICIES}, not {dst_missing!r}")
-    s = pd.Series(np.asarray(texts, dtype=object), dtype=object).where(lambda v: v.notna(), None)
-    s = s.map(lambda v: v.strip() if isinstance(v, str) else None)
-    n = len(s)
+    n = len(ns)
     utc = np.full(n, NAT, dtype=np.int64)
     status = np.full(n, BAD_TIME, dtype=np.int8)
-    has_off = s.map(lambda v: bool(v) and _OFFSET.search(v) is not None).to_numpy(dtype=bool)
-    if has_off.any():
-        ns = _to_ns(s[has_off], utc=True)
-        ok = ns != NAT
-        idx = np.flatnonzero(has_off)
-        utc[idx[ok]] = ns[ok]
-        status[idx[ok]] = GOOD
+    utc[aware] = ns[aware]
+    status[aware] = GOOD
     second = utc.copy()
-    naive = ~has_off & s.map(bool).to_numpy(dtype=bool)
     if naive.any() and timezone:
         idx = np.flatnonzero(naive)
-        wall = _naive_ns(s[naive])
+        wall = ns[naive]
         day = np.int64(86_400_000_000_000)
         # a day inside the ns range on both sides, so that adding a zone offset cannot overflow
         parsed = (wall != NAT) & (wall > np.iinfo(np.int64).min + 2 * day) & (wall < np.iinfo(np.int64).max - 2 * day)
