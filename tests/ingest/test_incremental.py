@@ -35,8 +35,12 @@ def test_daily_pulls_equal_one_read(tmp_path):
     _append(db, df[(df["timestamp"] >= cut1) & (df["timestamp"] < cut2)])
     p2 = read_new(cfg, "R-220", watermark=p1.watermark, **kw)
     assert p2.data.values.index[0] == p1.watermark and p2.watermark == pd.Timestamp("2026-09-01T17:30Z")
-    # only readings from the watermark minus the look-back (6 h default hold cap) were pulled
-    assert p2.data.source_report["rows"] < len(df[df["timestamp"] < cut2])
+    # the pushed-down window is widened to whole days (a day each side, for any stamp spelling), so this
+    # one-day history is read whole; only readings from the watermark minus the look-back (6 h default
+    # hold cap) are kept, the earlier ones counted outside the window
+    assert p2.data.source_report["rows"] == len(df[df["timestamp"] < cut2])
+    kept_from = p1.watermark - pd.Timedelta(hours=6)
+    assert int(p2.data.quality["outside_window"].sum()) == int((df["timestamp"] < kept_from).sum())
 
     _append(db, df[df["timestamp"] >= cut2])
     whole = read_unit(cfg, "R-220", until="2026-09-01T17:30Z", **kw)

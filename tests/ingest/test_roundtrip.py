@@ -223,15 +223,19 @@ def test_sqlite_odd_values_and_texts(tmp_path):
     assert q["good"] == 60
 
 
-def test_sqlite_pushes_the_window_into_sql(df, tmp_path):
-    write_sqlite(df, tmp_path / "h.sqlite")
+def test_sqlite_pushes_the_window_into_sql(tmp_path):
+    """Six days of readings, a window of four hours: SQL returns the days from a day before the window
+    (less its 6 h look-back) to the day after it (widened for any spelling), and the window is applied
+    exactly after parsing."""
+    three = readings(hours=144, seed=9, start="2026-08-28T00:00:00Z")
+    write_sqlite(three, tmp_path / "h.sqlite")
     got = _read(tmp_path, {"kind": "sqlite", "path": "h.sqlite"})
-    # rows before since - look-back, and after until, never reach Python
-    t = df["timestamp"]
-    assert got.source_report["rows"] < len(df)
+    t = three["timestamp"]
+    # look-back start 2026-08-31T19:00Z less a day: dated 08-30; end 09-01T05:00Z plus a day: dated 09-02
+    dated = (t >= pd.Timestamp("2026-08-30T00:00Z")) & (t < pd.Timestamp("2026-09-03T00:00Z"))
+    assert got.source_report["rows"] == int(dated.sum()) < len(three)
     assert got.source_report["rows"] == got.source_report["rows_total"]
-    assert int(got.quality["outside_window"].sum()) == 0
-    assert got.source_report["rows"] <= int(((t < pd.Timestamp(UNTIL))).sum())
+    assert int(got.quality["rows_read"].sum() + got.quality["outside_window"].sum()) == got.source_report["rows"]
 
 
 def _pg_load(url, df, native: bool, table: str):

@@ -27,15 +27,24 @@ or ``"wide"`` (time column + one column per tag; an empty cell is no reading);
 ``kind = "sqlite"`` (``path``) or ``kind = "sql"`` (URL from the environment variable
 named by ``url_env``, through SQLAlchemy 2; never logged): a long ``table`` with
 ``[source.columns]``, or ``query``, a SELECT whose only inputs are the bound
-parameters ``:since`` and ``:until``. ``time_column = "text"`` (ISO 8601 UTC text,
-compared as text) or ``"native"`` (a timestamp type). Reads are streamed in
-``chunk_rows`` rows; PostgreSQL (psycopg 3) via ``COPY ... TO STDOUT``, SQLite via
-chunks of CSV text built inside SQLite. The window is always in the WHERE clause.
+parameters ``:since`` and ``:until``. ``time_column = "text"`` (stamps as text, any
+spelling) or ``"native"`` (a timestamp type; without a time zone it is wall time of
+``source.timezone``, else UTC). Reads are streamed in ``chunk_rows`` rows; PostgreSQL
+(psycopg 3) via ``COPY ... TO STDOUT``, SQLite by rowid ranges (or a streamed SELECT
+for a view or a table without rowid). The window is pushed into the WHERE clause
+widened by a day on each side (ISO texts compared by their date part, texts of another
+shape always read), and applied exactly after parsing, so no reading of the window is
+lost whatever the stamps' spelling; stamps of a non-ISO ``time_format`` are read whole.
 
 Time stamps and daylight saving
 -------------------------------
-ISO 8601 with ``Z`` or an offset is exact. Without an offset the text is local wall
-time of ``source.timezone`` (an IANA zone); without a zone it is refused. The
+``source.time_format`` names the spelling (strftime pattern, ``"unix_s"``,
+``"unix_ms"``, ``"spreadsheet_days"``); without it ISO 8601 in any common spelling and
+day-first / month-first numeric dates (``/``, ``.``, ``-``; 24- or 12-hour clock) are
+recognised, the source deciding the day/month order (see
+:mod:`kinetrace.ingest.timeformats`). A stamp with ``Z`` or an offset is exact. Without
+an offset it is local wall time of ``source.timezone`` (an IANA zone); without a zone
+it is refused. The
 repeated hour (``dst_ambiguous``): ``"infer"`` places readings by file order, tag by
 tag (first pass daylight, from the first backward step on standard; a tag whose
 readings never step back is refused as ``ambiguous_time``); ``"daylight"``,

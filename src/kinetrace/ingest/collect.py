@@ -177,12 +177,12 @@ class Collector:
             return utc, np.where(utc == NAT, BAD_TIME, GOOD).astype(np.int8), utc, None, None, None
         if not (pa.types.is_string(ts.type) or pa.types.is_large_string(ts.type) or pa.types.is_dictionary(ts.type)):
             if pa.types.is_timestamp(ts.type):     # naive native times of a local zone: placed as wall time
-                ts = pc.strftime(ts, format="%Y-%m-%dT%H:%M:%S.%f")
+                ts = pc.strftime(ts, format="%Y-%m-%dT%H:%M:%S")   # %S carries the fraction
             ts = pc.cast(ts, pa.string())
         codes, dictionary = _codes(ts, as_arrow=True)
         fmt = self.source.time_format
         fast = None
-        if self.zone is None and fmt is None:
+        if fmt is None:
             try:   # every distinct text ISO 8601 with an offset: pyarrow parses them all at once
                 fast = pc.cast(dictionary, pa.timestamp("ns", tz="UTC"))
             except (pa.ArrowInvalid, pa.ArrowNotImplementedError):

@@ -3,7 +3,12 @@
 The statement is built from ``source.table`` and ``source.columns`` with quoted
 identifiers, or taken from ``source.query`` (a view or query text whose only
 inputs are the bound parameters ``:since`` and ``:until``); the time window and
-the unit's tag list are bound parameters, never pasted into SQL text. Rows
+the unit's tag list are bound parameters, never pasted into SQL text. The window
+is widened by a day on each side before it is pushed down (:func:`_bound`) and
+applied exactly after parsing, so that stamps with an offset, in local wall
+time, with a space for ``T`` or in a timestamp type without zone never lose
+readings at its edges; a text that does not start with an ISO date is always
+read (it cannot be compared as text). Rows
 arrive in partitions of ``source.chunk_rows`` (server-side cursor where the
 driver has one), so memory stays bounded. On PostgreSQL (psycopg 3) the rows
 are streamed with ``COPY (SELECT ...) TO STDOUT`` and parsed as CSV.
@@ -24,7 +29,7 @@ from __future__ import annotations
 import io
 import os
 import sqlite3
-from datetime import datetime, timezone
+from datetime import datetime, timedelta, timezone
 from pathlib import Path
 
 import pyarrow as pa
@@ -78,14 +83,58 @@ def source_url(source: Source, base_dir: Path | None = None) -> tuple[sa.URL, st
     return url, f"{name} ({url.get_backend_name()})"
 
 
-def _bound(ns: int, source: Source):
-    if ns == NAT:
-        return None
-    dt = datetime.fromtimestamp(ns / 1e9, tz=timezone.utc)
+#: How far the pushed-down window is widened on each side: local times and offsets lie within
+#: UTC-12 .. UTC+14, so a reading inside the window is stamped at most 14 h away from its UTC time. [ns]
+_WIDEN = 86_400 * 10**9
+_ISO_SHAPE = "____-__-__%"    # LIKE pattern of a text that starts with an ISO 8601 date
+
+
+def _iso_text(ns: int, default: int) -> str:
+    """ISO 8601 UTC text of a window edge for a template whose stamps cannot be compared in SQL."""
+    return pd.Timestamp(ns if ns != NAT else default, tz="UTC").strftime("%Y-%m-%dT%H:%M:%S")
+
+
+def window_kind(source: Source) -> str | None:
+    """How the time window can be pushed into SQL for this source's time column.
+
+    ``"native"`` (a timestamp type), ``"iso_text"`` (texts starting with an ISO date: compared
+    by their date part, widened), ``"number"`` (Unix or spreadsheet numbers), or None (another
+    spelling: only the tag list is pushed down, the window is applied after parsing).
+    """
     if source.time_column == "native":
-        return dt
-    # ISO 8601 UTC text compares in time order when every row has the same layout
-    return dt.strftime("%Y-%m-%dT%H:%M:%S")
+        return "native"
+    fmt = source.time_format
+    if fmt is None or fmt.startswith("%Y-%m-%d"):
+        return "iso_text"
+    if fmt in ("unix_s", "unix_ms", "spreadsheet_days"):
+        return "number"
+    return None
+
+
+def _bound(ns: int, source: Source, side: int):
+    """The pushed-down bound for a window edge ``ns`` [ns UTC]; ``side`` -1 lower, +1 upper.
+
+    Never exact: widened so that no reading of the window can fall outside it whatever its
+    spelling (offset, local wall time, space or ``T``, fractions); the exact window is applied
+    after parsing (:class:`~kinetrace.ingest.collect.Collector`). None for an open edge or a
+    spelling that cannot be compared in SQL.
+    """
+    kind = window_kind(source)
+    if ns == NAT or kind is None:
+        return None
+    edge = ns + side * _WIDEN
+    if kind == "native":
+        return datetime.fromtimestamp(edge / 1e9, tz=timezone.utc)
+    if kind == "number":
+        fmt = source.time_format
+        if fmt == "spreadsheet_days":
+            return edge / 86_400e9 + 25569 + side          # a further day: local wall time of the serial
+        return (edge / 1e9) * (1e3 if fmt == "unix_ms" else 1.0)
+    day = datetime.fromtimestamp(edge / 1e9, tz=timezone.utc).date()
+    if side > 0:
+        day = day + timedelta(days=1)                      # every stamp dated up to the day after the edge
+    # a text bound of the date alone: '2026-09-01' <= '2026-09-01 00:00+09:00' < '2026-09-02'
+    return day.isoformat()
 
 
 #: Labels of the compact columns of a table-mode SELECT (small integers cost the driver least).
@@ -101,14 +150,15 @@ def build_statement(source: Source, tags: list[str], since_ns: int, until_ns: in
     integers and NULLs instead of strings.
     """
     c = source.columns
-    since, until = _bound(since_ns, source), _bound(until_ns, source)
+    since, until = _bound(since_ns, source, -1), _bound(until_ns, source, +1)
     if source.query:
         # a template compares with both bounds: an open end is bound as a time far outside any
         # historian (1900 / 2200 UTC), since "timestamp >= NULL" would match nothing
+        far = (int(pd.Timestamp("1900-01-01", tz="UTC").value), int(pd.Timestamp("2200-01-01", tz="UTC").value))
         if since is None:
-            since = _bound(int(pd.Timestamp("1900-01-01", tz="UTC").value), source)
+            since = _bound(since_ns if since_ns != NAT else far[0], source, -1) or _iso_text(since_ns, far[0])
         if until is None:
-            until = _bound(int(pd.Timestamp("2200-01-01", tz="UTC").value), source)
+            until = _bound(until_ns if until_ns != NAT else far[1], source, +1) or _iso_text(until_ns, far[1])
         params = {"since": since, "until": until}
         return sa.text(source.query), params
     schema, _, table = source.table.rpartition(".")
@@ -125,10 +175,18 @@ def build_statement(source: Source, tags: list[str], since_ns: int, until_ns: in
         else:
             out.append(t.c[c.quality])
     stmt = sa.select(*out).where(t.c[c.tag].in_(tags))
+    ts = t.c[c.timestamp]
+    window = []
     if since is not None:
-        stmt = stmt.where(t.c[c.timestamp] >= since)
+        window.append(ts >= since)
     if until is not None:
-        stmt = stmt.where(t.c[c.timestamp] < until)
+        window.append(ts < until)
+    if window:
+        cond = sa.and_(*window)
+        if window_kind(source) == "iso_text":
+            # texts of another shape cannot be compared as text: they are read and placed after parsing
+            cond = sa.or_(cond, ts.is_(None), sa.not_(ts.like(_ISO_SHAPE)))
+        stmt = stmt.where(cond)
     return stmt, {}
 
 
@@ -247,13 +305,18 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     ts, tg, val = q(c.timestamp), q(c.tag), q(c.value)
     marks = ",".join("?" * len(tags))
     where, args = [f"{{p}}{tg} IN ({marks})"], list(tags)
-    since, until = _bound(since_ns, source), _bound(until_ns, source)
+    since, until = _bound(since_ns, source, -1), _bound(until_ns, source, +1)
+    window, wargs = [], []
     if since is not None:
-        where.append(f"{{p}}{ts} >= ?")
-        args.append(since)
+        window.append(f"{{p}}{ts} >= ?")
+        wargs.append(since)
     if until is not None:
-        where.append(f"{{p}}{ts} < ?")
-        args.append(until)
+        window.append(f"{{p}}{ts} < ?")
+        wargs.append(until)
+    if window:
+        other = f" OR {{p}}{ts} IS NULL OR NOT {{p}}{ts} LIKE '{_ISO_SHAPE}'" if window_kind(source) == "iso_text" else ""
+        where.append(f"({' AND '.join(window)}{other})")
+        args += wargs
     cond = " AND ".join(where).format(p="")
     # in the chunk query a unary + keeps SQLite on the rowid range instead of a (tag, time) index
     cond_rowid = " AND ".join(where).format(p="+")
@@ -371,8 +434,11 @@ def _columns(collector: Collector, by: dict, source: Source, tags: list[str], go
     ts_list = col(c.timestamp)
     if isinstance(ts_list, pa.Array):
         ts = ts_list
-    elif ts_list and isinstance(next((v for v in ts_list if v is not None), ""), datetime):
-        ts = pa.array([_utc(v) for v in ts_list], type=pa.timestamp("us", tz="UTC"))
+    elif ts_list and isinstance(first := next((v for v in ts_list if v is not None), ""), datetime):
+        if first.tzinfo is None:     # a timestamp type without zone: wall time, placed by the collector
+            ts = pa.array([None if v is None else v.replace(tzinfo=None) for v in ts_list], type=pa.timestamp("us"))
+        else:
+            ts = pa.array([_utc(v) for v in ts_list], type=pa.timestamp("us", tz="UTC"))
     else:
         ts = _str_array(ts_list)
     values = col(c.value)
