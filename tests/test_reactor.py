@@ -6,6 +6,7 @@ import pytest
 
 from kinetrace.chemistry import conversion
 from kinetrace.kinetics.balances import consumption_rate_steady
+from kinetrace.kinetics.cstr import solve_cstr
 from kinetrace.reactor import key_reactant_rate, residence_time
 from kinetrace.units import to_si
 
@@ -31,20 +32,23 @@ def test_fogler_ethylene_glycol_cstr_back_calculates_k():
 
 def test_fogler_two_cstrs_in_series_and_parallel():
     # Fogler, ethylene glycol example: two 800-gal CSTRs in parallel give X = 0.81,
-    # in series X = 0.90 [found in REFERENCES.md]. First order: X = k tau / (1 + k tau) per tank.
+    # in series X = 0.90 [found in REFERENCES.md] (printed to 2 decimals). Computed with the project's
+    # CSTR solver only (first order, k = 0.311 1/min); the series case feeds the first tank's outlet
+    # to the second.
     k = 0.311 / 60
     v0 = to_si(15.34, "ft^3/min", "volumetric_flow")
     v = to_si(800, "US_liquid_gallon", "volume")
-    tau_par = residence_time(v, v0 / 2)
-    x_par = k * tau_par / (1 + k * tau_par)
-    tau = residence_time(v, v0)
-    x_ser = 1 - 1 / (1 + k * tau) ** 2
-    assert x_par == pytest.approx(0.81, abs=0.005)
+    ca0 = to_si(0.5, "lbmol/ft^3", "concentration")
+    law = dict(key="A", stoichiometry={"A": -1.0, "B": 1.0}, orders={"A": 1.0})
+    par = solve_cstr("power_law", residence_time(v, v0 / 2), {"A": ca0}, k, **law)
+    first = solve_cstr("power_law", residence_time(v, v0), {"A": ca0}, k, **law)
+    second = solve_cstr("power_law", residence_time(v, v0), first.concentrations, k, **law)
+    x_ser = 1.0 - second.concentrations["A"] / ca0
+    assert par.conversion == pytest.approx(0.81, abs=0.005)
     assert x_ser == pytest.approx(0.90, abs=0.005)
     # and the design equation gives back k from the parallel tank's conversion
-    ca0 = 1000.0
-    rate = key_reactant_rate(v0 / 2 * ca0, x_par, v)
-    assert rate / (ca0 * (1 - x_par)) == pytest.approx(k, rel=1e-12)
+    rate = key_reactant_rate(v0 / 2 * ca0, par.conversion, v)
+    assert rate / (ca0 * (1 - par.conversion)) == pytest.approx(k, rel=1e-12)
 
 
 @pytest.mark.parametrize("kind", ["scalar", "array", "series", "nan"])

@@ -144,3 +144,15 @@ def test_unit_scales_collects_every_bad_tag():
     where = [p.where for p in info.value.problems]
     assert where == ["units[1].tags[0].unit", "units[1].tags[1].unit"]
     assert "'CB2:R220_FEED.GPM'" in info.value.problems[0].message
+
+
+def test_psi_against_nist_sp811():
+    # NIST SP 811 (2008) App. B.9: 1 psi (lbf/in^2) = 6.894 757 E+03 Pa (printed to 7 s.f.); exactly,
+    # lbf = 0.45359237 kg x 9.80665 m/s^2 (B.8, standard gravity) over (0.0254 m)^2 (inch, exact)
+    from kinetrace.units import from_si, to_si
+
+    exact = LB * 9.80665 / 0.0254**2
+    assert to_si(1.0, "psi", "pressure") == pytest.approx(6894.757, rel=1e-7)
+    assert to_si(1.0, "psi", "pressure") == pytest.approx(exact, rel=1e-12)
+    assert to_si(1.0, "psi", "pressure") == pytest.approx(REF.Quantity(1.0, "psi").to("Pa").magnitude, rel=1e-12)
+    assert from_si(6894.757293168361, "psi", "pressure") == pytest.approx(1.0, rel=1e-12)

@@ -30,6 +30,11 @@ def test_cao_rhinehart_null_percentile():
     half = stats.norm.ppf(0.995) * np.sqrt(n * 0.95 * 0.05)
     lo, hi = r_sorted[int(np.floor(n * 0.95 - half))], r_sorted[int(np.ceil(n * 0.95 + half))]
     assert lo - 0.005 <= 1.44 <= hi + 0.005
+    # the 99th percentile, 1.73 [computed, REFERENCES.md], the same way: ranks n q +- z sqrt(n q (1 - q))
+    half99 = stats.norm.ppf(0.995) * np.sqrt(n * 0.99 * 0.01)
+    lo99, hi99 = r_sorted[int(np.floor(n * 0.99 - half99))], r_sorted[int(np.ceil(n * 0.99 + half99))]
+    assert lo99 - 0.005 <= 1.73 <= hi99 + 0.005
+    assert hi99 - lo99 < 0.25  # the interval is narrow enough to tell 1.73 from, e.g., 1.44 or 2.0
     # the null median is near 1 by construction of the (2 - l1) factor
     # (Cao & Rhinehart 1995, eq. for R)
     assert np.median(r_last) == pytest.approx(1.0, abs=0.1)

@@ -65,6 +65,22 @@ def test_fit_recovers_parameters_of_synthetic_data(law):
     assert fit.residual_sd == pytest.approx(0.01, rel=0.15)
 
 
+def test_linear_law_against_ordinary_least_squares():
+    # Fogler (2016) ch. 10 [memory]: linear decay a = a0 (1 - b t) is a straight line in t with intercept
+    # a0 and slope -a0 b, so the unweighted fit must equal scipy.stats.linregress (reference library) on
+    # the same data, b = -slope / intercept. Data: an invented straight line plus 1 % noise.
+    rng = np.random.default_rng(17)
+    t_day = np.linspace(0.0, 120.0, 241)
+    a = 0.97 - 0.0035 * t_day + rng.normal(0.0, 0.01, t_day.size)
+    fit = fit_decay(t_day * DAY, a, method="linear")
+    ols = stats.linregress(t_day, a)
+    assert fit.params["a0"] == pytest.approx(ols.intercept, rel=1e-6)
+    assert fit.params["b"] * DAY == pytest.approx(-ols.slope / ols.intercept, rel=1e-6)
+    # the law itself at the OLS line: a(t) = intercept + slope t
+    np.testing.assert_allclose(decay_activity("linear", t_day * DAY, a0=ols.intercept, b=-ols.slope / ols.intercept / DAY),
+                               ols.intercept + ols.slope * t_day, rtol=1e-12)
+
+
 @pytest.mark.parametrize("law", ["linear", "exponential", "hyperbolic"])
 def test_aicc_picks_the_generating_law(law):
     # with 241 points and 1 % noise the generating two-parameter law wins or ties with nth_order

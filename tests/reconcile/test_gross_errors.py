@@ -219,3 +219,21 @@ def test_persistent_3_sigma_bias_identified_as_that_sensor(rng):
     for j, rate in rates.items():
         assert rate >= (0.9 if r_j[j] >= 0.6 else 0.5), (j, round(float(r_j[j]), 3), rates)
     assert sum(r_j >= 0.6) == 6
+
+
+def test_serial_elimination_stops_not_testable_at_zero_dof():
+    # splitter F1 = F2 + F3 (one balance, 1 dof) with a +5 sigma error on F1: after removing the worst
+    # sensor no degree of freedom is left, so nothing confirms the removal: "not testable", not "passed"
+    # (common practice, no source: a test needs a redundant measurement)
+    A = [[1.0, -1.0, -1.0]]
+    se = serial_elimination(lambda ys, rows: reconcile_linear(ys, 1.0, A), [[15.0, 6.0, 4.0], [10.0, 6.0, 4.0]])
+    assert se.status.tolist() == ["not testable", "passed"]
+    assert se.n_removed.tolist() == [1, 0] and se.dof.tolist() == [0, 1]
+    assert not se.passed[0] and se.not_testable[0]
+    # a step with no dof from the start is not testable either and nothing is removed
+    se0 = serial_elimination(lambda ys, rows: reconcile_linear(ys, 1.0, A), [[np.nan, 6.0, 4.0]])
+    assert se0.status.tolist() == ["not testable"] and se0.n_removed.tolist() == [0]
+    # the chain of four flows keeps dof after one removal: passes (docstring example, Ripps 1965 method)
+    A4 = [[1.0, -1, 0, 0], [0, 1, -1, 0], [0, 0, 1, -1]]
+    se4 = serial_elimination(lambda ys, rows: reconcile_linear(ys, 1.0, A4), [[10.0, 10.1, 15.0, 9.9]])
+    assert se4.status.tolist() == ["passed"] and se4.dof.tolist() == [2]

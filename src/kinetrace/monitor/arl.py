@@ -102,19 +102,28 @@ def _ewma_arl(lam: float, limit: float, shift: float, m: int) -> float:
 
 
 @lru_cache(maxsize=1024)
-def _cusum_one_sided(k: float, h: float, shift: float, n_states: int) -> float:
+def _cusum_one_sided(k: float, h: float, shift: float, n_states: int, head_start: float = 0.0) -> float:
     m = int(n_states)
-    w = 2.0 * h / (2 * m - 1)
+    w = 2.0 * h / (2 * m - 1)  # state 0 is [0, w/2), state i is [(i - 1/2) w, (i + 1/2) w)
     i = np.arange(m)
     d = (i[None, :] - i[:, None]) * w + k - shift  # centre_j - centre_i + k - shift
     p = stats.norm.cdf(d + w / 2) - stats.norm.cdf(d - w / 2)
     p[:, 0] = stats.norm.cdf(w / 2 - i * w + k - shift)
     arl = np.linalg.solve(np.eye(m) - p, np.ones(m))
-    return float(arl[0])
+    return float(arl[min(int(round(head_start / w)), m - 1)])
 
 
-def cusum_arl(k: float, h: float, shift: float = 0.0, *, two_sided: bool = True, n_states: int = 250) -> float:
-    """ARL of a tabular CUSUM chart, by Markov chain.
+def cusum_arl(k: float, h: float, shift: float = 0.0, *, two_sided: bool = True, n_states: int = 250,
+              head_start: float = 0.0) -> float:
+    """ARL of a tabular CUSUM chart, by Markov chain, optionally with a head start.
+
+    With a head start (fast initial response, Lucas & Crosier 1982) both one-sided
+    statistics start at ``head_start`` instead of 0; the ARL is read from the
+    Markov-chain state that holds it. The two sides are combined by
+    1/ARL = 1/ARL+ + 1/ARL-, as without a head start; with a head start this
+    overstates the two-sided in-control ARL by a few per cent (both sides start
+    away from zero, so they are not independent renewals): k = 0.5, h = 4, head
+    start 2 gives 158 here against about 150 by simulation (tests).
 
     Parameters
     ----------
@@ -128,11 +137,13 @@ def cusum_arl(k: float, h: float, shift: float = 0.0, *, two_sided: bool = True,
         Upper and lower schemes together (default) or the upper one alone.
     n_states : int
         Number of Markov-chain states.
+    head_start : float
+        C+_0 = C-_0, 0 <= head_start < h; h/2 is the usual choice. [in-control standard deviations]
 
     Returns
     -------
     float
-        Average run length from C_0 = 0. [-]
+        Average run length from C_0 = ``head_start``. [-]
 
     References
     ----------
@@ -146,16 +157,23 @@ def cusum_arl(k: float, h: float, shift: float = 0.0, *, two_sided: bool = True,
 
     >>> 460 < cusum_arl(0.5, 5.0) < 470
     True
+
+    A head start of h/2 shortens the run length after a start-up shift:
+
+    >>> cusum_arl(0.5, 5.0, 1.0, head_start=2.5) < cusum_arl(0.5, 5.0, 1.0)
+    True
     """
     if not h > 0:
         raise KinetraceError(f"CUSUM decision interval h must be positive, got {h!r}")
     if k < 0:
         raise KinetraceError(f"CUSUM reference value k must be non-negative, got {k!r}")
-    k, h, shift, n_states = float(k), float(h), float(shift), int(n_states)
-    up = _cusum_one_sided(k, h, shift, n_states)
+    if not 0.0 <= head_start < h:
+        raise KinetraceError(f"CUSUM head start must be in [0, h = {h:g}), got {head_start!r}")
+    k, h, shift, n_states, hs = float(k), float(h), float(shift), int(n_states), float(head_start)
+    up = _cusum_one_sided(k, h, shift, n_states, hs)
     if not two_sided:
         return up
-    down = _cusum_one_sided(k, h, -shift, n_states)
+    down = _cusum_one_sided(k, h, -shift, n_states, hs)
     return 1.0 / (1.0 / up + 1.0 / down)
 
 

@@ -193,7 +193,11 @@ class SerialElimination:
     objective, dof : ndarray (T,)
         Global-test statistic and degrees of freedom after removal.
     passed : ndarray (T,) of bool
-        Global test passes after removal.
+        Global test passes after removal (with at least one degree of freedom left).
+    not_testable : ndarray (T,) of bool
+        No degree of freedom is left (from the start, or after the removals): nothing can
+        be tested there, so neither "passed" nor "failed" holds; the sensors removed up to
+        then stay suspect, but the last removal is not confirmed by a test.
     """
 
     suspect: np.ndarray
@@ -203,6 +207,13 @@ class SerialElimination:
     objective: np.ndarray
     dof: np.ndarray
     passed: np.ndarray
+    not_testable: np.ndarray
+
+    @property
+    def status(self) -> np.ndarray:
+        """Outcome per step: ``"passed"``, ``"failed"`` (still rejected when the removals
+        stopped) or ``"not testable"`` (no degree of freedom left)."""
+        return np.where(self.not_testable, "not testable", np.where(self.passed, "passed", "failed"))
 
     @property
     def n_removed(self) -> np.ndarray:
@@ -213,6 +224,10 @@ class SerialElimination:
 def serial_elimination(solve, y, alpha=0.05, max_eliminations=None) -> SerialElimination:
     """Identify faulty sensors by removing, one at a time, the largest measurement-test
     statistic until the global test passes.
+
+    The removals stop with "not testable" at a step where no degree of freedom is left
+    (each removal takes at least one away), since the global test can then neither pass
+    nor fail.
 
     Parameters
     ----------
@@ -246,8 +261,8 @@ def serial_elimination(solve, y, alpha=0.05, max_eliminations=None) -> SerialEli
     >>> from kinetrace.reconcile import reconcile_linear
     >>> A = [[1.0, -1, 0, 0], [0, 1, -1, 0], [0, 0, 1, -1]]
     >>> se = serial_elimination(lambda ys, rows: reconcile_linear(ys, 1.0, A), [[10.0, 10.1, 15.0, 9.9]])
-    >>> se.suspect.tolist(), round(float(se.bias[0, 2]), 2)
-    ([[False, False, True, False]], 5.0)
+    >>> se.suspect.tolist(), round(float(se.bias[0, 2]), 2), se.status.tolist()
+    ([[False, False, True, False]], 5.0, ['passed'])
     """
     _check_alpha(alpha)
     y = np.array(y, dtype=float)
@@ -270,11 +285,12 @@ def serial_elimination(solve, y, alpha=0.05, max_eliminations=None) -> SerialEli
             sig = np.array(res.sigma)
         x[active], var_x[active] = res.x, res.var_x
         objective[active], dof[active] = res.objective, res.dof
-        ok = ~global_test(res, alpha).reject
+        testable = np.asarray(res.dof) > 0
+        ok = ~global_test(res, alpha).reject & testable
         passed[active] = ok
         zabs = np.abs(res.standardized_adjustment)
         can = np.any(np.isfinite(zabs), axis=1)
-        go = ~ok & can
+        go = ~ok & can & testable
         if round_ == max_eliminations or not go.any():
             break
         worst = np.argmax(np.nan_to_num(zabs[go], nan=-1.0), axis=1)
@@ -284,4 +300,4 @@ def serial_elimination(solve, y, alpha=0.05, max_eliminations=None) -> SerialEli
         active = rows
     bias = np.where(suspect, y - x, np.nan)
     bias_sd = np.where(suspect, np.sqrt(sig**2 + var_x), np.nan)
-    return SerialElimination(suspect, bias, bias_sd, x, objective, dof, passed)
+    return SerialElimination(suspect, bias, bias_sd, x, objective, dof, passed, dof == 0)
