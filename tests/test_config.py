@@ -97,3 +97,19 @@ def test_toml_syntax_error_and_missing_file(tmp_path):
         load_config(p)
     with pytest.raises(ConfigError, match="file not found"):
         load_config(tmp_path / "nope.toml")
+
+
+def test_catalysed_reactions_default_and_checks(raw):
+    # R-210 declares its thermal dimerisation as not catalysed; R-220 takes the default (every law)
+    cfg = load_config(DEMO)
+    assert unit_model(cfg.units[0]).catalysed_reactions == ("addition",)
+    assert unit_model(cfg.units[1]).catalysed_reactions == ("hydrolysis",)
+    bad = copy.deepcopy(raw)
+    bad["units"][0]["activity"]["catalysed"] = ["dimerisation", "cracking"]
+    with pytest.raises(ConfigError) as info:
+        validate_config(bad)
+    msgs = [str(p) for p in info.value.problems]
+    assert ("units[0].activity.catalysed: reaction 'cracking' is not a reaction of the unit with a rate law "
+            "(those are ['addition', 'dimerisation'])") in msgs
+    assert ("units[0].activity.catalysed: the main reaction 'addition' must be catalysed: the catalyst "
+            "activity is defined on it") in msgs

@@ -23,7 +23,8 @@ def _two_reaction_unit():
     }
     nu = np.array([[-1.0, -2.0], [-1.0, 0.0], [1.0, 0.0], [0.0, 1.0]])
     return UnitModel("R-900", ("A", "B", "P", "D"), np.full(4, 0.1), ("main", "side"), nu, laws, "A", "P", 1.5,
-                     10.0, None, {"A": 2000.0, "B": 19500.0}, (), (318.0, 358.0), (4e-4, 2e-3))
+                     10.0, None, {"A": 2000.0, "B": 19500.0}, (), (318.0, 358.0), (4e-4, 2e-3),
+                     catalysed=("main",))
 
 
 def _ode_steady_production(unit, activity, q, temp, vol):
@@ -101,3 +102,36 @@ def test_forecast_on_the_simulator_contains_the_first_day_below_target():
     # the fitted trend follows the true activity at the forecast start (noise 0.01 on about 1300 points)
     a_fit = trend.predict([seen.index[-1]])["activity"].iloc[0]
     assert a_fit == pytest.approx(seen["activity"].iloc[-1], abs=0.005)
+
+
+def _series_unit(catalysed):
+    """Invented unit: A + B -> P, then P + B -> Q, both on one catalyst (second order each)."""
+    laws = {
+        "first": RateLawModel("power_law", 3e-6, 60e3, 340.0, {"orders": {"A": 1.0, "B": 1.0}}),
+        "second": RateLawModel("power_law", 1e-6, 70e3, 340.0, {"orders": {"P": 1.0, "B": 1.0}}),
+    }
+    nu = np.array([[-1.0, 0.0], [-1.0, -1.0], [1.0, -1.0], [0.0, 1.0]])
+    return UnitModel("R-901", ("A", "B", "P", "Q"), np.full(4, 0.1), ("first", "second"), nu, laws, "A", "P", 0.5,
+                     6.0, None, {"A": 1500.0, "B": 3000.0}, (), (320.0, 360.0), (2e-4, 2e-3), catalysed=catalysed)
+
+
+@pytest.mark.parametrize("activity", [1.0, 0.6, 0.2])
+def test_activity_multiplies_every_catalysed_reaction(activity):
+    """Reference: scipy's solve_ivp of dC/dt = (C0 - C)/tau + nu r(C) to steady state, with the catalyst
+    activity on both reactions (the default) or on the first only (``catalysed=("first",)``)."""
+    q, temp, vol = 1.2e-3, 345.0, 6.0
+    tau = vol / q
+    c0 = np.array([1500.0, 3000.0, 0.0, 0.0])
+    for catalysed, a2 in ((None, activity), (("first",), 1.0)):
+        unit = _series_unit(catalysed)
+        k1 = activity * at_temperature(3e-6, temp, 60e3, 340.0)
+        k2 = a2 * at_temperature(1e-6, temp, 70e3, 340.0)
+
+        def rhs(_, c, k1=k1, k2=k2, unit=unit):
+            c = np.maximum(c, 0.0)
+            return (c0 - c) / tau + unit.nu @ np.array([k1 * c[0] * c[1], k2 * c[2] * c[1]])
+
+        sol = integrate.solve_ivp(rhs, (0.0, 60 * tau), c0, method="LSODA", rtol=1e-10, atol=1e-8)
+        got = production_at(unit, activity=activity, feed_flow=q, temperature=temp, volume=vol)
+        # ODE integrated over 60 residence times to rtol 1e-10: agreement to 1e-6 relative
+        assert got == pytest.approx(q * sol.y[2, -1], rel=1e-6)

@@ -194,6 +194,15 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
                 problems.add(f"{where}.rate_law", "a reversible rate law needs equilibrium_constant and reaction_enthalpy")
     if unit.reactions and unit.reactions[0].rate_law is None:
         problems.add(f"{at}.reactions[0].rate_law", "the first (main) reaction needs a rate law")
+    if unit.activity.catalysed is not None:
+        with_law = [r.id for r in unit.reactions if r.rate_law is not None]
+        for name in unit.activity.catalysed:
+            if name not in with_law:
+                problems.add(f"{at}.activity.catalysed", f"reaction {name!r} is not a reaction of the unit with a "
+                             f"rate law (those are {with_law})")
+        if unit.reactions and unit.reactions[0].id not in unit.activity.catalysed:
+            problems.add(f"{at}.activity.catalysed", f"the main reaction {unit.reactions[0].id!r} must be catalysed: "
+                         "the catalyst activity is defined on it")
     if unit.key_reactant not in declared:
         problems.add(f"{at}.key_reactant", f"species {unit.key_reactant!r} is not declared")
     elif not consumed_key:

@@ -51,6 +51,7 @@ class UnitModel:
     feed_flow_limits: tuple[float, float]     # [m^3/s]
     fresh_period: tuple | None = None
     plan_feed_flow: float | None = None       # [m^3/s], from [units.plan]
+    catalysed: tuple[str, ...] | None = None  # reactions the catalyst activity multiplies (None: all with a law)
 
     def index(self, species: str) -> int:
         """Row of ``species`` in ``nu`` and in concentration arrays."""
@@ -67,6 +68,13 @@ class UnitModel:
     @property
     def main_reaction(self) -> str:
         return self.reaction_ids[0]
+
+    @property
+    def catalysed_reactions(self) -> tuple[str, ...]:
+        """Reactions whose rate constant the catalyst activity multiplies (default: all with a rate law)."""
+        if self.catalysed is not None:
+            return tuple(self.catalysed)
+        return tuple(r for r in self.reaction_ids if r in self.rate_laws)
 
 
 def tag_sigma(tag: Tag, kind: str) -> tuple[float, float]:
@@ -116,4 +124,5 @@ def unit_model(unit: Unit) -> UnitModel:
         temperature_limits=tuple(unit.limits.temperature), feed_flow_limits=tuple(unit.limits.feed_flow),
         fresh_period=unit.activity.fresh_period,
         plan_feed_flow=None if unit.plan is None else unit.plan.feed_flow,
+        catalysed=None if unit.activity.catalysed is None else tuple(unit.activity.catalysed),
     )

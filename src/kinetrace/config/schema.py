@@ -223,6 +223,8 @@ class Activity(_Strict):
 
     fresh_period: tuple[datetime, datetime] | None = None
     catalyst_changes: list[datetime] = Field(default_factory=list)
+    # reactions whose rate the catalyst activity multiplies (None: every reaction with a rate law)
+    catalysed: list[str] | None = None
 
 
 class Unit(_Strict):

@@ -1,10 +1,12 @@
 """A unit's reactions as the steady-state CSTR model sees them (shared by forecast and what-if).
 
 The unit is an ideal liquid-phase CSTR at steady state. The catalyst activity a
-multiplies the rate constant of the main reaction (the first one configured,
-on which :mod:`kinetrace.pipeline.backcalc` defines activity); every other
-reaction with a rate law keeps its configured constant, k_j(T) by Arrhenius.
-Reactions without a rate law are left out.
+multiplies the rate constant of every catalysed reaction
+(``UnitModel.catalysed_reactions``: the configured ``[units.activity] catalysed``
+list, by default every reaction with a rate law; the main reaction, on which
+:mod:`kinetrace.pipeline.backcalc` defines activity, always is one); a reaction
+that is not catalysed (a thermal side reaction) keeps its constant, k_j(T) by
+Arrhenius. Reactions without a rate law are left out.
 
 * One reaction: :func:`kinetrace.kinetics.cstr.solve_cstr` (closed forms or a
   vectorised bracketed root), and the activity needed is exact,
@@ -48,6 +50,7 @@ class _Law:
     k_ref: float
     activation_energy: float
     reference_temperature: float
+    catalysed: bool = True
 
 
 @dataclass(frozen=True)
@@ -98,7 +101,7 @@ class UnitReactions:
         """Outlet concentrations [mol/m^3] of the multi-reaction CSTR at one operating point."""
         c0 = self._feed_vector()
         tau = v / q
-        ks = [self._k(j, t) * (activity if j == 0 else 1.0) for j in range(len(self.laws))]
+        ks = [self._k(j, t) * (activity if law.catalysed else 1.0) for j, law in enumerate(self.laws)]
 
         def rates(c):
             conc = dict(zip(self.species, np.maximum(c, 0.0)))
@@ -226,12 +229,16 @@ def unit_reactions(model: UnitModel, *, feed_conc=None, fresh_k_ref=None, yield_
         raise KinetraceError(f"unit {model.id}: main reaction {rid!r} has no rate law configured; "
                              "a forecast or what-if needs one")
     cols = [j for j, r in enumerate(model.reaction_ids) if r in model.rate_laws]
+    catalysed = set(model.catalysed_reactions)
+    if rid not in catalysed:
+        raise KinetraceError(f"unit {model.id}: the main reaction {rid!r} must be catalysed (activity is defined "
+                             f"on it); catalysed: {sorted(catalysed)}")
     laws = []
     for j in cols:
         law = model.rate_laws[model.reaction_ids[j]]
         k = law.k_ref if (j != 0 or fresh_k_ref is None) else float(fresh_k_ref)
         laws.append(_Law(j, law.method, dict(law.params), float(k), law.activation_energy,
-                         law.reference_temperature))
+                         law.reference_temperature, model.reaction_ids[j] in catalysed))
     feed = {s: float(v) for s, v in dict(model.feed if feed_conc is None else feed_conc).items()}
     if not feed.get(model.key_reactant, 0.0) > 0:
         raise KinetraceError(f"unit {model.id}: feed concentration of the key reactant "
