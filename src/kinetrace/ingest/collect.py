@@ -20,7 +20,7 @@ import pyarrow.compute as pc
 from ..config.schema import Source, Tag
 from .fates import AMBIGUOUS_TIME, BAD_QUALITY, BAD_TIME, BAD_VALUE, GOOD, NONEXISTENT_TIME
 from .growing import GrowingArray
-from .timeformats import OK, UNDECIDED, _order_hint, explain, read_stamps
+from .timeformats import OK, UNDECIDED, order_hint, explain, read_stamps
 from .timestamps import NAT, place
 
 #: At most this many detailed records (file:line, text) are kept per tag and fate.
@@ -354,7 +354,7 @@ class Collector:
         self._pending, self._pending_rows = [], 0
         raise IngestError(source_name, [Problem("time stamps", (
             f"every time stamp read ({n} readings) reads both day-first and month-first, so the day and month "
-            f"cannot be told apart: {'; '.join(samples)}; set source.time_format = {_order_hint(first)}"))])
+            f"cannot be told apart: {'; '.join(samples)}; set source.time_format = {order_hint(first)}"))])
 
     def finish(self, source_name: str = "source") -> None:
         """End of the source: refuse what is still held back (see :meth:`refuse_undecided`)."""

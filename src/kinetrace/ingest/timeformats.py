@@ -301,7 +301,7 @@ def _one(text: str, fmt: str, aware: bool) -> int:
         return NAT
 
 
-def _order_hint(text: str) -> str:
+def order_hint(text: str) -> str:
     m = _DM.match(text or "")
     if not m:
         return ""
@@ -331,11 +331,11 @@ def explain(text, reason: int, time_format: str | None = None, order: str | None
         return f"time stamp {t} is not a valid date and time (e.g. day 31 of a 30-day month, hour 25)"
     if reason == UNDECIDED:
         return (f"time stamp {t} reads both day-first and month-first and no stamp of the source decides; "
-                f"set source.time_format = {_order_hint(text)}")
+                f"set source.time_format = {order_hint(text)}")
     if reason == CONTRADICTS:
         other = "month-first" if order == DAY_FIRST else "day-first"
         return (f"time stamp {t} is only valid {other}, but other stamps of the source are "
-                f"{order.replace('_', '-') if order else '?'}; set source.time_format = {_order_hint(text)}")
+                f"{order.replace('_', '-') if order else '?'}; set source.time_format = {order_hint(text)}")
     return (f"time stamp {t} is not a recognised spelling (ISO 8601 such as 2026-09-01T06:00:00Z, or a day-first "
             "or month-first date with '/', '.' or '-' and a four-digit year); set source.time_format to its "
             "strftime pattern, e.g. '%d/%m/%y %H:%M'")
