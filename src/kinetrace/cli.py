@@ -13,6 +13,7 @@ from pathlib import Path
 
 import typer
 
+from .cli_args import iso_day, iso_window
 from .errors import KinetraceError
 
 app = typer.Typer(add_completion=False, no_args_is_help=True,
@@ -129,8 +130,40 @@ def _run(config: Path, since, until, out, incremental: bool = False) -> tuple[li
                      progress=lambda u, i, n: log.info("checking unit %s (%d of %d)", u, i + 1, n))
 
 
-#: Exit codes of ``kinetrace check`` (for cron or any scheduler).
-EXIT_OK, EXIT_ATTENTION, EXIT_ERROR = 0, 1, 2
+#: Exit codes of ``kinetrace check`` (for cron or any scheduler): on target, needs attention,
+#: inputs unusable (config, data, store, arguments), internal error.
+EXIT_OK, EXIT_ATTENTION, EXIT_ERROR, EXIT_INTERNAL = 0, 1, 2, 3
+
+
+def _internal_error(doing: str, config: Path | None, out: Path | None) -> typer.Exit:
+    """Write the traceback of the exception being handled to a file and say where, in one line; exit 3.
+
+    The file goes to ``out``, else the config's output folder, else the system's temporary folder.
+    """
+    import tempfile
+    import traceback
+    from datetime import datetime, timezone
+
+    folder = Path(out) if out else None
+    if folder is None and config is not None:
+        try:
+            from .config import load_config, resolve_path
+
+            folder = resolve_path(config, load_config(config).analysis.output_dir)
+        except Exception:  # noqa: BLE001 - the config may be what failed; fall back to the temp folder
+            folder = None
+    stamp = datetime.now(timezone.utc).strftime("%Y%m%dT%H%M%SZ")
+    for base in ([folder] if folder else []) + [Path(tempfile.gettempdir())]:
+        try:
+            base.mkdir(parents=True, exist_ok=True)
+            path = base / f"kinetrace-internal-error-{stamp}.txt"
+            path.write_text(traceback.format_exc())
+            break
+        except OSError:
+            path = None
+    where = f"; the full report is in {path}" if path else ""
+    typer.echo(f"kinetrace: internal error while {doing}{where}", err=True)
+    return typer.Exit(EXIT_INTERNAL)
 
 
 def _open_store(config: Path):
@@ -173,16 +206,21 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
     """Back-calculate, reconcile and assess every unit; exit 1 when a unit needs attention.
 
     Exit status: 0 every unit on target and no open alarm; 1 a unit below target, without
-    data, or with an open alarm (the reasons are printed); 2 the check could not run.
+    data, or with an open alarm (the reasons are printed); 2 the check could not run because of
+    its inputs (config, data, store, arguments); 3 an internal error (one line says where its
+    report was written).
     Safe to run from cron every hour: each run replaces the results of its window.
     """
     _setup_logging()
     try:
+        since, until = iso_window(since, until)
         results, out_dir = _run(config, since, until, out, incremental)
         reasons = _attention(config)
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
         raise typer.Exit(EXIT_ERROR) from None
+    except Exception:  # noqa: BLE001 - no traceback reaches the user
+        raise _internal_error("running the check", config, out) from None
     if results:
         _print_summary(results, out_dir)
     else:
@@ -201,10 +239,12 @@ def report(config: Path = typer.Option(..., "--config", "-c", help="Plant config
     """Write the daily report for operations (HTML page and XLSX workbook) from the results store."""
     _setup_logging()
     try:
-        files = _write_report(config, date, out)
+        files = _write_report(config, iso_day(date), out)
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
         raise typer.Exit(EXIT_ERROR) from None
+    except Exception:  # noqa: BLE001 - no traceback reaches the user
+        raise _internal_error("writing the report", config, out) from None
     typer.echo(f"Daily report: {files.html}")
     typer.echo(f"Workbook:     {files.xlsx}")
 
@@ -230,6 +270,8 @@ def demo(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c", help="Demo p
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
         raise typer.Exit(EXIT_ERROR) from None
+    except Exception:  # noqa: BLE001 - no traceback reaches the user
+        raise _internal_error("running the demo", config, None) from None
     _print_summary(results, out_dir)
     typer.echo(f"Daily report: {files.html}")
     typer.echo(f"Workbook:     {files.xlsx}")
