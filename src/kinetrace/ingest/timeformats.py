@@ -302,6 +302,13 @@ def _one(text: str, fmt: str, aware: bool) -> int:
 
 
 def order_hint(text: str) -> str:
+    """The two ``source.time_format`` patterns a numeric date like ``text`` may need (day or month first).
+
+    Examples
+    --------
+    >>> order_hint("03/01/2026 18:00")
+    "'%d/%m/%Y %H:%M' (day first) or '%m/%d/%Y %H:%M' (month first)"
+    """
     m = _DM.match(text or "")
     if not m:
         return ""
