@@ -6,6 +6,7 @@ truth is the reference here. The run is 24 days, before the scenario's flowmeter
 starts (day 55): that bias spoils the feed flow, hence conversion, until reconciliation corrects it.
 """
 
+import dataclasses
 import json
 from pathlib import Path
 
@@ -13,7 +14,9 @@ import numpy as np
 import pandas as pd
 import pytest
 
+from kinetrace.config import load_config, unit_model
 from kinetrace.kinetics.steady import steady_windows
+from kinetrace.pipeline.backcalc import back_calculate
 from kinetrace.pipeline import run_check
 from kinetrace.simulator import generate_sample_historian
 from tests.pipeline.demo import demo_config
@@ -52,7 +55,13 @@ def _windows(res, truth):
 def test_back_calculation_from_the_raw_measurements(demo_run, unit, rxn):
     """The first back-calculation (design equation on hourly means, no reconciliation)."""
     results, truths, facts, _ = demo_run
-    s, ok, windows = _windows(results[unit], truths[unit])
+    res = results[unit]
+    # the back-calculation itself, at the configured rate law (the demo's configured values are the
+    # simulator's): the check's own columns use the calibrated parameters, tested below
+    configured = back_calculate(res.roles, unit_model(next(u for u in load_config(ROOT / "config" / "demo_plant.toml").units
+                                                           if u.id == unit)), steady=res.series["steady"])
+    res = dataclasses.replace(res, series=res.series.assign(**{f"k_ref:{rxn}_measured": configured[f"k_ref:{rxn}"]}))
+    s, ok, windows = _windows(res, truths[unit])
     assert ok.sum() > 0.3 * len(s), "too few steady hours found"
     assert len(windows) >= 10
     # hourly conversion within 0.01 (absolute) of the truth in steady stretches
@@ -85,8 +94,14 @@ def test_reconciled_results(demo_run, unit, rxn):
     assert dx.median() <= dx_raw.median()
     k_err = np.array([w[f"k_ref:{rxn}"].mean() / w[f"k_ref_{rxn}_true"].mean() - 1 for w in windows])
     p_err = np.array([w["production"].mean() / w["product_rate_true"].mean() - 1 for w in windows])
-    assert np.median(np.abs(k_err)) < 0.015
-    assert np.mean(np.abs(k_err) < 0.03) >= 0.95
+    # k_ref(t) uses the parameters calibrated from these 24 days at one temperature, where the
+    # adsorption constant is known to about +-20 % only: the true k_ref lies in the band (which
+    # carries that uncertainty) and the stretch errors stay within 5 %
+    assert np.median(np.abs(k_err)) < 0.03
+    assert np.abs(k_err).max() < 0.05
+    inside = [((w[f"k_ref_low:{rxn}"] <= w[f"k_ref_{rxn}_true"]) & (w[f"k_ref_{rxn}_true"] <= w[f"k_ref_high:{rxn}"])).mean()
+              for w in windows]
+    assert np.mean(inside) >= 0.9, inside
     # R-220: where the unanalysed feed departs from its specification, the balances move part of
     # that departure onto the product analyzer (weighted least squares by design), hence 1.5 %
     assert np.abs(p_err).max() < (0.01 if unit == "R-210" else 0.015), p_err
@@ -100,10 +115,11 @@ def test_activity_tracks_the_decay(demo_run):
     for unit, res in results.items():
         s, ok, _ = _windows(res, truths[unit])
         a = s.loc[ok, "activity"]
-        # the fresh baseline is the first 3 days' steady median: activity ratio within 3 %
-        ratio = a / (s.loc[ok, "activity_true"] / s.loc[ok & (s.index < s.index[0] + pd.Timedelta("3D")), "activity_true"].mean())
+        # activity is relative to the calibrated fresh k_ref (activity 1 at the start of the configured
+        # fresh period, 6 h after the simulator's time 0): within 1 % of the simulator's activity
+        ratio = a / s.loc[ok, "activity_true"]
         assert ratio.median() == pytest.approx(1.0, abs=0.01)
-        assert res.series.attrs["fresh_basis"][res.model.reaction_ids[0]].startswith("median of")
+        assert res.series.attrs["fresh_basis"][res.model.reaction_ids[0]].startswith("fitted k_ref")
 
 
 def test_outputs_written(demo_run):
@@ -173,7 +189,9 @@ def test_k_ref_band_and_fitted_rate_law(demo_run):
     p = res.kinetic_parameters.set_index("name")
     # the first 24 days run at one temperature (68 degC): Ea is not estimable and is held at its
     # configured value; K is fitted. Simulator truth: K_MA = 0.5 L/mol = 5e-4 m3/mol
-    assert "activation_energy:addition" not in p.index
-    assert "Ea held at configured value" in p.loc["K_MA:addition", "method"]
+    assert p.loc["activation_energy:addition", "method"].startswith("held at the configured value: the steady "
+                                                                     "stretches span 0.0 K")
+    assert p.loc["activation_energy:addition", "value"] == 58e3
+    assert p.loc["K_MA:addition", "method"].startswith("estimated jointly with the activity history")
     assert p.loc["K_MA:addition", "ci_low"] <= 5e-4 <= p.loc["K_MA:addition", "ci_high"], p.loc["K_MA:addition"].to_dict()
 

@@ -135,6 +135,26 @@ def _check_site(cfg: PlantConfig, problems: ProblemList) -> None:
         problems.add("source.url_env", "a sql source needs url_env, the name of the environment variable holding its URL")
 
 
+def _check_calibration_keys(law, where: str, problems) -> None:
+    """``hold``, ``fit_orders`` and ``uncertainty`` of a rate law name things the law has."""
+    from .model import parse_uncertainty
+
+    allowed = ["k_ref", "activation_energy", *(f"K_{s}" for s in law.adsorption),
+               *(f"order_{s}" for s in law.orders)]
+    for name in law.hold:
+        if name not in allowed:
+            problems.add(f"{where}.hold", f"{name!r} is not a parameter of this law; allowed: {', '.join(allowed)}")
+    for sp in law.fit_orders:
+        if sp not in law.orders:
+            problems.add(f"{where}.fit_orders", f"{sp!r} has no order in this law; orders: {', '.join(law.orders)}")
+    if law.fit_orders and law.method == "reversible":
+        problems.add(f"{where}.fit_orders", "orders of a reversible law are not estimated")
+    try:
+        parse_uncertainty(law.uncertainty)
+    except (ValueError, UnitError) as exc:
+        problems.add(f"{where}.uncertainty", str(exc))
+
+
 def _rate_constant_kind_ok(text: str, overall_order: float) -> str | None:
     try:
         parse_rate_constant(text, overall_order)
@@ -192,6 +212,7 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
                 problems.add(f"{where}.rate_law.adsorption", "a saturating rate law needs at least one adsorption constant")
             if law.method == "reversible" and (law.equilibrium_constant is None or law.reaction_enthalpy is None):
                 problems.add(f"{where}.rate_law", "a reversible rate law needs equilibrium_constant and reaction_enthalpy")
+            _check_calibration_keys(law, f"{where}.rate_law", problems)
     if unit.reactions and unit.reactions[0].rate_law is None:
         problems.add(f"{at}.reactions[0].rate_law", "the first (main) reaction needs a rate law")
     if unit.activity.catalysed is not None:

@@ -28,6 +28,11 @@ class RateLawModel:
     activation_energy: float     # [J/mol]
     reference_temperature: float  # [K]
     params: dict = field(default_factory=dict)
+    hold: tuple[str, ...] = ()            # parameters held at their configured values
+    fit_orders: tuple[str, ...] = ()      # species whose order the calibration estimates
+    uncertainty: dict = field(default_factory=dict)  # k_ref, adsorption: ln-scale sd [-]; activation_energy [J/mol]; order [-]
+    prior: bool = False                   # configured values as priors of the calibration
+    source: str = "configured"            # "configured", or where the fitted values come from
 
 
 @dataclass(frozen=True)
@@ -52,6 +57,8 @@ class UnitModel:
     fresh_period: tuple | None = None
     plan_feed_flow: float | None = None       # [m^3/s], from [units.plan]
     catalysed: tuple[str, ...] | None = None  # reactions the catalyst activity multiplies (None: all with a law)
+    catalyst_changes: tuple = ()              # configured catalyst changes (UTC timestamps)
+    decay_law: str = "auto"                   # decay family of the joint calibration
 
     def index(self, species: str) -> int:
         """Row of ``species`` in ``nu`` and in concentration arrays."""
@@ -110,7 +117,9 @@ def unit_model(unit: Unit) -> UnitModel:
             params.update(reverse_orders=dict(law.reverse_orders), equilibrium_constant=law.equilibrium_constant,
                           reaction_enthalpy=law.reaction_enthalpy, reference_temperature=law.reference_temperature)
         laws[r.id] = RateLawModel(law.method, parse_rate_constant(law.k_ref, sum(law.orders.values())),
-                                  law.activation_energy, law.reference_temperature, params)
+                                  law.activation_energy, law.reference_temperature, params,
+                                  hold=tuple(law.hold), fit_orders=tuple(law.fit_orders),
+                                  uncertainty=parse_uncertainty(law.uncertainty), prior=law.prior)
     target_mm = mm[species.index(unit.target.species)]
     table = None
     if unit.volume.table:
@@ -125,4 +134,31 @@ def unit_model(unit: Unit) -> UnitModel:
         fresh_period=unit.activity.fresh_period,
         plan_feed_flow=None if unit.plan is None else unit.plan.feed_flow,
         catalysed=None if unit.activity.catalysed is None else tuple(unit.activity.catalysed),
+        catalyst_changes=tuple(unit.activity.catalyst_changes), decay_law=unit.activity.decay_law,
     )
+
+
+def parse_uncertainty(spec: dict[str, str]) -> dict[str, float]:
+    """Standard uncertainties of configured rate-law values, as the calibration uses them.
+
+    ``k_ref`` and ``adsorption`` as a percentage (``"100 %"`` is a factor of 2: ln-scale sd
+    ln(1 + 1.00)); ``activation_energy`` as a molar energy (``"15 kJ/mol"``); ``order`` as a number.
+
+    >>> u = parse_uncertainty({"k_ref": "100 %", "activation_energy": "15 kJ/mol"})
+    >>> round(u["k_ref"], 4), u["activation_energy"]
+    (0.6931, 15000.0)
+    """
+    out: dict[str, float] = {}
+    for key, text in spec.items():
+        t = str(text).strip()
+        if key in ("k_ref", "adsorption"):
+            if not t.endswith("%"):
+                raise ValueError(f"uncertainty.{key} must be a percentage such as '50 %', got {text!r}")
+            out[key] = float(np.log1p(float(t[:-1]) / 100.0))
+        elif key == "activation_energy":
+            out[key] = parse_quantity(t, "molar_energy")
+        elif key == "order":
+            out[key] = float(t)
+        else:
+            raise ValueError(f"uncertainty.{key}: unknown; allowed k_ref, activation_energy, adsorption, order")
+    return out

@@ -138,6 +138,11 @@ class RateLaw(_Strict):
     reverse_orders: dict[str, float] = Field(default_factory=dict)
     equilibrium_constant: float | None = None
     reaction_enthalpy: MolarEnergy | None = None
+    # self-calibration: the values above are starting points; these say what is held, fitted, trusted
+    hold: list[str] = Field(default_factory=list)          # k_ref, activation_energy, K_<species>, order_<species>
+    fit_orders: list[str] = Field(default_factory=list)    # species whose order is estimated
+    uncertainty: dict[str, str] = Field(default_factory=dict)  # standard uncertainty of the configured values
+    prior: bool = False                                    # configured values and uncertainties as priors
 
 
 class ReactionSpec(_Strict):
@@ -225,6 +230,8 @@ class Activity(_Strict):
     catalyst_changes: list[datetime] = Field(default_factory=list)
     # reactions whose rate the catalyst activity multiplies (None: every reaction with a rate law)
     catalysed: list[str] | None = None
+    # decay family of the joint rate-law and activity fit: "auto" (chosen by QAICc) or one law
+    decay_law: Literal["auto", "linear", "exponential", "hyperbolic", "nth_order"] = "auto"
 
 
 class Unit(_Strict):

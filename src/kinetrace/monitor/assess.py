@@ -149,6 +149,7 @@ def assess_unit(
     operating_hours: int = 24,
     operating_point: dict | None = None,
     open_for: str = "3D",
+    decay_method: str = "auto",
 ) -> UnitAssessment:
     """Trend, alarms, production against target, forecast and what-if for one unit.
 
@@ -189,6 +190,9 @@ def assess_unit(
         activity needed, the forecast and the what-if.
     open_for : str
         How long an alarm stays open after detection (pandas Timedelta string).
+    decay_method : str
+        Decay law of the trend (``"auto"``: chosen by AICc; the daily check passes the family
+        its joint calibration chose, so that one model is used throughout).
 
     Returns
     -------
@@ -238,7 +242,7 @@ def assess_unit(
         steady = series["steady"].astype(bool) if "steady" in series else pd.Series(True, index=series.index)
         act = series["activity"].where(steady)
         try:
-            trend = fit_activity_trend(act, events=events)
+            trend = fit_activity_trend(act, events=events, method=decay_method)
         except KinetraceError as exc:
             problems.append(f"activity trend: {exc}")
         if act.notna().sum() >= 12:

@@ -32,7 +32,7 @@ References
 
 from __future__ import annotations
 
-from collections.abc import Callable, Sequence
+from collections.abc import Sequence
 from dataclasses import dataclass, field
 from typing import Any
 
@@ -41,6 +41,7 @@ import pandas as pd
 from scipy import optimize, stats
 
 from kinetrace.errors import DataQualityError, KinetraceError
+from kinetrace.kinetics.deactivation import DECAY_LAWS, ORDER_BOUNDS, DecayLaw
 from kinetrace.monitor._common import DAY, float_values
 
 __all__ = [
@@ -51,50 +52,6 @@ __all__ = [
 ]
 
 
-def _linear(t, a0, b):
-    return a0 * (1.0 - b * t)
-
-
-def _exponential(t, a0, kd):
-    return a0 * np.exp(-kd * t)
-
-
-def _hyperbolic(t, a0, kd):
-    return a0 / (1.0 + kd * t)
-
-
-def _nth_order(t, a0, kd, m):
-    e = m - 1.0
-    if abs(e) < 1e-9:
-        return a0 * np.exp(-kd * t)
-    base = 1.0 + e * kd * t
-    with np.errstate(invalid="ignore", divide="ignore", over="ignore"):
-        out = a0 * np.exp(-np.log(np.where(base > 0, base, np.nan)) / e)
-    # m < 1: the activity reaches zero in finite time and stays there
-    return np.where(base > 0, out, 0.0)
-
-
-@dataclass(frozen=True)
-class _Law:
-    name: str
-    formula: str
-    func: Callable[..., np.ndarray]
-    params: tuple[str, ...]
-    units: tuple[str, ...]
-
-
-_LAWS: dict[str, _Law] = {
-    "linear": _Law("linear", "a = a0 (1 - b t)", _linear, ("a0", "b"), ("-", "1/s")),
-    "exponential": _Law("exponential", "a = a0 exp(-kd t)", _exponential, ("a0", "kd"), ("-", "1/s")),
-    "hyperbolic": _Law("hyperbolic", "1/a = (1 + kd t) / a0", _hyperbolic, ("a0", "kd"), ("-", "1/s")),
-    "nth_order": _Law("nth_order", "a = a0 [1 + (m - 1) kd t]^(-1/(m-1))", _nth_order,
-                      ("a0", "kd", "m"), ("-", "1/s", "-")),
-}
-
-#: Bounds of the n-th order exponent m. [-]
-ORDER_BOUNDS = (0.0, 6.0)
-
-
 def list_decay_laws() -> list[str]:
     """Names of the decay laws :func:`fit_decay` and :func:`decay_activity` accept.
 
@@ -103,15 +60,15 @@ def list_decay_laws() -> list[str]:
     >>> list_decay_laws()
     ['linear', 'exponential', 'hyperbolic', 'nth_order']
     """
-    return list(_LAWS)
+    return list(DECAY_LAWS)
 
 
-def _law(method: str) -> _Law:
+def _law(method: str) -> DecayLaw:
     try:
-        return _LAWS[method]
+        return DECAY_LAWS[method]
     except (KeyError, TypeError):
         raise KinetraceError(
-            f"unknown decay law {method!r}; allowed: {', '.join(_LAWS)} (or 'auto' in fit_decay)"
+            f"unknown decay law {method!r}; allowed: {', '.join(DECAY_LAWS)} (or 'auto' in fit_decay)"
         ) from None
 
 
@@ -240,7 +197,7 @@ class DecayFit:
         return f"{self.method.replace('_', '-')} decay, " + ", ".join(parts)
 
 
-def _gradient(law: _Law, t: np.ndarray, theta: np.ndarray) -> np.ndarray:
+def _gradient(law: DecayLaw, t: np.ndarray, theta: np.ndarray) -> np.ndarray:
     """d a / d theta by central differences, shape (len(t), p)."""
     grad = np.empty((t.size, theta.size))
     for j in range(theta.size):
@@ -361,7 +318,7 @@ def fit_decay(
     >>> round(fit.params["a0"], 6), round(fit.params["kd"] * 86400.0, 6)
     (0.95, 0.01)
     """
-    names = list(_LAWS) if method == "auto" else [method] if isinstance(method, str) else list(method)
+    names = list(DECAY_LAWS) if method == "auto" else [method] if isinstance(method, str) else list(method)
     for m in names:
         _law(m)
     if not names:
@@ -378,7 +335,7 @@ def fit_decay(
     rows: dict[str, dict[str, Any]] = {}
     fits = {}
     for m in names:
-        if a.size < len(_LAWS[m].params) + 2:
+        if a.size < len(DECAY_LAWS[m].params) + 2:
             continue
         res = _fit_one(m, t, a, w)
         if res is None:

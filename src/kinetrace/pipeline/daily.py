@@ -17,6 +17,7 @@ import pandas as pd
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError, KinetraceError
 from .backcalc import back_calculate
+from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
 from .kinetics_step import fit_history, k_ref_band
 from .reconciliation import reconcile_unit
 from .roles import role_frame
@@ -39,6 +40,7 @@ class UnitResult:
     data: object = None                             # kinetrace.ingest.UnitData (readings and their fates)
     sigma_source: str = ""                          # where the reconciliation's uncertainties came from
     rate_law_comparison: object = None              # kinetrace.kinetics.estimation.ModelComparison
+    calibration: object = None                      # kinetrace.pipeline.calibration_step.CalibrationOutcome
 
 
 def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, until=None,
@@ -70,28 +72,49 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     measured = back_calculate(roles, model, fresh_k_ref=fresh_k_ref)
     rec = reconcile_unit(roles, model, steady=measured["steady"])
     series = back_calculate(rec.roles, model, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
-    attrs = dict(series.attrs)
-    series = series.join(measured[[c for c in MEASURED_COLUMNS if c in measured]
-                                  + [c for c in measured if c.startswith("k_ref:")]].add_suffix("_measured"))
     series = series.join(rec.frame)
-    series = series.join(k_ref_band(series, model, rec.roles))
-    if keep_from is not None:
-        series = series.loc[series.index >= keep_from]
-        if series.empty:
-            return UnitResult(model, series, roles, data.quality, {}, faults=[])
-    series.attrs.update(attrs)
-    result = UnitResult(model, series, roles, data.quality, {}, faults=rec.faults)
-    result.data = data
-    result.sigma_source = rec.sigma_source
-    full = series
+    old = None
     if history is not None and len(history):
         old = history.loc[history.index < series.index[0]].copy()
         if "rate_basis_extents" in old:
             old["rate_basis"] = np.where(old.pop("rate_basis_extents") > 0.5, "extents", "key_reactant")
         old["steady"] = old["steady"].fillna(0.0).astype(bool)
+    # self-calibration over the whole history: the rates and concentrations it uses do not depend on
+    # any rate-law parameter, so stored rows are as good as new ones
+    hist_new = series if old is None else pd.concat([old, series])
+    outcome = calibrate_unit(hist_new, model)
+    for p in outcome.problems:
+        log.info("unit %s: calibration: %s", model.id, p)
+    used = model
+    if outcome.model is not None:
+        used = outcome.model
+        fresh_k_ref = {rid: law.k_ref for rid, law in used.rate_laws.items()}
+        measured = back_calculate(roles, used, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
+        series = back_calculate(rec.roles, used, steady=measured["steady"], fresh_k_ref=fresh_k_ref).join(rec.frame)
+        series.attrs["fresh_basis"] = {rid: "fitted k_ref of this run's calibration" for rid in fresh_k_ref}
+        if old is not None:
+            old = rederive(old, used, fresh_k_ref)
+    attrs = dict(series.attrs)
+    attrs["parameter_set"] = outcome.statement
+    series = series.join(measured[[c for c in MEASURED_COLUMNS if c in measured]
+                                  + [c for c in measured if c.startswith("k_ref:")]].add_suffix("_measured"))
+    series["fitted_parameters"] = 1.0 if outcome.model is not None else 0.0
+    series = series.join(k_ref_band(series, used, rec.roles, extra_sd=parameter_uncertainty(series, used, outcome.calibration)))
+    if keep_from is not None:
+        series = series.loc[series.index >= keep_from]
+        if series.empty:
+            return UnitResult(used, series, roles, data.quality, {}, faults=[])
+    series.attrs.update(attrs)
+    result = UnitResult(used, series, roles, data.quality, {}, faults=rec.faults)
+    result.data = data
+    result.sigma_source = rec.sigma_source
+    result.calibration = outcome
+    full = series
+    if old is not None and len(old):
         full = pd.concat([old, series])
         full.attrs.update(attrs)
-    result.assessment = _assess(cfg, model, full)
+    decay = outcome.calibration.decay_method if outcome.calibration is not None else "auto"
+    result.assessment = _assess(cfg, used, full, decay_method=decay)
     trend = None
     if result.assessment is not None and result.assessment.trend is not None:
         fitted = result.assessment.trend.predict(full.index)
@@ -103,7 +126,15 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
         for c in ("activity_fit", "activity_band_low", "activity_band_high"):
             series[c] = full[c].reindex(series.index).to_numpy()
         trend = full["activity_fit"]
-    result.kinetic_parameters, result.rate_law_comparison, problems = fit_history(full, model, trend)
+    rows, result.rate_law_comparison, problems = fit_history(full, used, trend)
+    if outcome.model is not None:
+        # the calibration's rows are the parameters; the history fit adds the rate-law comparison only
+        keep = rows["name"].str.startswith(("rate_law_best", "ratelaw_aicc")) if len(rows) else []
+        rows = pd.concat([outcome.rows, rows[keep]], ignore_index=True) if len(rows) else outcome.rows
+    else:
+        rows = pd.concat([rows, pd.DataFrame([{"name": "parameter_set", "value": 0.0, "unit_of_measure": "-",
+                                               "method": outcome.statement}])], ignore_index=True)
+    result.kinetic_parameters = rows
     for p in problems:
         log.info("unit %s: rate-law fit: %s", model.id, p)
     result.series = series
@@ -117,7 +148,7 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
 DRIFT_ARL0 = 2000.0
 
 
-def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame):
+def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame, *, decay_method: str = "auto"):
     """The monitoring stage (catalyst trend, drift alarms, production, forecast, what-if) of one unit."""
     from ..monitor import assess_unit, volume_limits_from_level
 
@@ -136,7 +167,8 @@ def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame):
         monitored = series.copy()
         monitored.loc[~monitored["steady"].astype(bool), "activity"] = np.nan
         return assess_unit(monitored, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
-                           volume_limits=vol_limits, arl0=DRIFT_ARL0, plan_feed_flow=model.plan_feed_flow)
+                           volume_limits=vol_limits, arl0=DRIFT_ARL0, plan_feed_flow=model.plan_feed_flow,
+                           decay_method=decay_method)
     except KinetraceError as exc:
         log.warning("unit %s: monitoring stage skipped: %s", model.id, exc)
         return None

@@ -27,7 +27,8 @@ from ..kinetics.uncertainty import delta_method
 from .roles import role_column
 
 
-def k_ref_band(series: pd.DataFrame, model: UnitModel, roles: pd.DataFrame) -> pd.DataFrame:
+def k_ref_band(series: pd.DataFrame, model: UnitModel, roles: pd.DataFrame, *,
+               extra_sd: dict[str, np.ndarray] | None = None) -> pd.DataFrame:
     """Standard uncertainty and 95 % band of k_ref of every reaction with a rate law.
 
     Parameters
@@ -39,6 +40,9 @@ def k_ref_band(series: pd.DataFrame, model: UnitModel, roles: pd.DataFrame) -> p
         The unit.
     roles : DataFrame
         Role frame used (for the temperature uncertainty ``sigma:temperature``). [SI]
+    extra_sd : dict, optional
+        Reaction id -> a further standard uncertainty of each row's k_ref, combined in
+        quadrature (the configured uncertainty of parameters held at their configured value). [SI of k]
 
     Returns
     -------
@@ -78,6 +82,8 @@ def k_ref_band(series: pd.DataFrame, model: UnitModel, roles: pd.DataFrame) -> p
             _, s = delta_method(k_ref_of, {k: v[ok] for k, v in values.items()},
                                 {k: np.nan_to_num(v[ok]) for k, v in sds.items()})
             sd_k[ok] = s
+        if extra_sd and rid in extra_sd:
+            sd_k = np.hypot(sd_k, extra_sd[rid])
         k = series[f"k_ref:{rid}"].to_numpy(dtype=float)
         out[f"k_ref_sd:{rid}"] = sd_k
         out[f"k_ref_low:{rid}"] = k - 1.96 * sd_k
