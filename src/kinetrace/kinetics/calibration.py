@@ -196,6 +196,8 @@ class _Problem:
         ln_a0 = np.zeros(self.charge.max() + 1 if self.charge.size else 1)
         for c, i in self.a0_of_charge.items():
             ln_a0[c] = th[i]
+        if not self.decay_idx:
+            return ln_a0[self.charge]
         law = DECAY_LAWS[self.decay]
         f = law.func(self.tos, 1.0, *(th[i] for i in self.decay_idx))
         with np.errstate(divide="ignore", invalid="ignore"):
@@ -345,7 +347,7 @@ def _unit(p: _P) -> str:
 
 def _layout(laws: Mapping[str, LawSpec], decay: str, charges: Sequence[int], fresh: Mapping[int, bool],
             spans: Mapping, t_star: float, *, min_temperature_span: float, min_concentration_span: float,
-            identifiable_k: bool, rates_ok: Mapping[str, bool]) -> list[_P]:
+            identifiable_k: bool, rates_ok: Mapping[str, bool], with_activity: bool = True) -> list[_P]:
     out: list[_P] = []
     for rid, law in laws.items():
         why_rxn = "" if rates_ok[rid] else f"fewer than {_MIN_RATES} positive rates of reaction {rid}"
@@ -376,6 +378,8 @@ def _layout(laws: Mapping[str, LawSpec], decay: str, charges: Sequence[int], fre
             held = why_rxn or ("held by the configuration" if name in law.hold else "")
             v = float(law.params["orders"][sp])
             out.append(_P(rid, name, "order", v, 0.0, 4.0, v, law.u("order"), held, law.prior, sp))
+    if not with_activity:        # no reaction on the catalyst: no activity parameters
+        return out
     for c in charges:
         if not fresh.get(c, False):
             out.append(_P("", f"a0_charge_{c}", "a0", 0.0, np.log(1e-3), np.log(2.0)))
@@ -391,7 +395,7 @@ def calibrate(rates: Mapping[str, np.ndarray], conc: Mapping[str, np.ndarray], t
               charge, laws: Mapping[str, LawSpec], *, fresh_charges: Mapping[int, bool] | Sequence[int] = (),
               catalysed: Sequence[str] = (), decay_methods: Sequence[str] | str = DECAY_FAMILIES,
               times=None, min_temperature_span: float = 3.0, min_concentration_span: float = 0.05,
-              level: float = 0.95) -> Calibration:
+              level: float = 0.95, serial_correlation: bool = True) -> Calibration:
     """Estimate every rate law and the activity history together; see the module docstring.
 
     Parameters
@@ -422,6 +426,9 @@ def calibrate(rates: Mapping[str, np.ndarray], conc: Mapping[str, np.ndarray], t
         Smallest (max - min) / mean of a species' concentration for its adsorption constant. [-]
     level : float
         Interval level. [-]
+    serial_correlation : bool
+        Widen the intervals for autocorrelated residuals (False: independent points, e.g. a
+        table of separate experiments).
 
     Returns
     -------
@@ -460,7 +467,7 @@ def calibrate(rates: Mapping[str, np.ndarray], conc: Mapping[str, np.ndarray], t
             raise KinetraceError(f"unknown decay law {m!r}; allowed: {', '.join(DECAY_LAWS)} or 'auto'")
     order_t = np.arange(n) if times is None else np.asarray(times, dtype=float)
     kw = dict(min_temperature_span=min_temperature_span, min_concentration_span=min_concentration_span,
-              identifiable_k=identifiable_k, rates_ok=rates_ok)
+              identifiable_k=identifiable_k, rates_ok=rates_ok, with_activity=bool(catalysed))
 
     def problem(method, holds=None):
         params = _layout(laws, method, charges, fresh, spans, t_star, **kw)
@@ -485,7 +492,7 @@ def calibrate(rates: Mapping[str, np.ndarray], conc: Mapping[str, np.ndarray], t
     # criterion QAICc (Burnham & Anderson 2002, sec. 6.2): autocorrelated residuals would otherwise
     # favour the family with more parameters
     e1 = first.by_reaction(th)
-    c_hat, _ = _inflation({r: e / sigma[r] for r, e in e1.items()}, {r: order_t[first.rows[r]] for r in e1})
+    c_hat, _ = (1.0, 0.0) if not serial_correlation else _inflation({r: e / sigma[r] for r, e in e1.items()}, {r: order_t[first.rows[r]] for r in e1})
     # stage 2: every family with those weights, chosen by QAICc
     cands, fits = [], {}
     for m in methods:
@@ -500,6 +507,8 @@ def calibrate(rates: Mapping[str, np.ndarray], conc: Mapping[str, np.ndarray], t
     table = pd.DataFrame(cands).set_index("decay_law")
     table["delta_aicc"] = table["aicc"] - table["aicc"].min()
     close = table[table["delta_aicc"] < 2.0]
+    if close.empty:    # too few points for the criterion: every family is as good
+        close = table
     # among the families the data cannot tell apart, the fewest parameters, then the order given
     # (exponential first, the usual default; Levenspiel 1999, ch. 21)
     rank = {m: i for i, m in enumerate(methods)}
@@ -513,7 +522,7 @@ def calibrate(rates: Mapping[str, np.ndarray], conc: Mapping[str, np.ndarray], t
         prob.sigma = sigma
         th, ssr, jac, free = solve(prob)
         resid = prob.by_reaction(th)
-        infl, rho = _inflation({r: e / sigma[r] for r, e in resid.items()},
+        infl, rho = (1.0, 0.0) if not serial_correlation else _inflation({r: e / sigma[r] for r, e in resid.items()},
                                {r: order_t[prob.rows[r]] for r in resid})
         dof = max(prob.n_obs - len(free), 1)
         s2 = ssr / dof

@@ -58,6 +58,7 @@ class UnitAssessment:
     molar_mass: float
     open_for: pd.Timedelta
     problems: list[str] = field(default_factory=list)
+    feed_basis: str = "feed composition: specification"   # which feed the model used, in words
 
     def daily_rows(self) -> pd.DataFrame:
         """Daily production and gap parts. [kg], hours [h]; index the production day (date)."""
@@ -139,6 +140,7 @@ def assess_unit(
     events=(),
     plan_feed_flow: float | None = None,
     key_feed_conc=None,
+    feed_conc: dict | None = None,
     valid: pd.Series | None = None,
     volume_limits: tuple[float, float] | None = None,
     arl0: float = 370.0,
@@ -167,6 +169,10 @@ def assess_unit(
         Plan feed flow [m^3/s] for the gap attribution; default: the expected yield
         is the fresh-catalyst model's at the present operating point, and the plan
         feed is target / (expected yield x C_A0).
+    feed_conc : dict, optional
+        Feed composition of the steady-state model used by the expected yield, the activity
+        needed, the forecast and the what-if (species -> [mol/m^3]); default ``model.feed``
+        (the specification). The daily check passes the reconciled analysed feed where there is one.
     key_feed_conc : float or Series, optional
         Key-reactant feed concentration [mol/m^3]; default the configured feed.
     valid : Series of bool, optional
@@ -265,7 +271,7 @@ def assess_unit(
     daily = pd.DataFrame()
     try:
         if plan_feed_flow is None:
-            rx = unit_reactions(model)
+            rx = unit_reactions(model, feed_conc=feed_conc)
             y_exp = float(rx.production(1.0, op["feed_flow"], op["temperature"], op["volume"])) / (
                 op["feed_flow"] * rx.feed[model.key_reactant])
             plan = {"expected_yield": y_exp}
@@ -279,7 +285,7 @@ def assess_unit(
     whatifs: list[WhatIf] = []
     if len(op) == 3 and all(np.isfinite(v) and v > 0 for v in op.values()):
         try:
-            a_req = required_activity(model, **op)
+            a_req = required_activity(model, feed_conc=feed_conc, **op)
             if trend is not None:
                 forecast = forecast_crossing(trend, a_req, unit=model.id, now=as_of, horizon_days=horizon_days,
                                              tz=tz)
@@ -287,7 +293,7 @@ def assess_unit(
             else:
                 a_now = float(series["activity"].dropna().iloc[-operating_hours:].median())
             if np.isfinite(a_now) and a_now > 0:
-                whatifs = what_if(model, activity=a_now, volume_limits=volume_limits, **op)
+                whatifs = what_if(model, activity=a_now, volume_limits=volume_limits, feed_conc=feed_conc, **op)
         except KinetraceError as exc:
             problems.append(f"forecast / what-if: {exc}")
     else:

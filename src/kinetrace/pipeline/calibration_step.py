@@ -1,7 +1,7 @@
 """Self-calibration step of the daily check: the rate-law parameters the data say, used downstream.
 
 1. The steady history (new rows and stored ones) is cut into stretches of at most 12 h inside
-   steady windows and inside one catalyst charge, and averaged (rates from the balances,
+   steady windows and inside one catalyst charge, and averaged (rates from the dynamic balances,
    reconciled outlet concentrations, temperature, time).
 2. Charges restart at each configured catalyst change; a charge starting at a change, or the
    charge holding the configured fresh period, starts at activity 1; a charge that went on
@@ -91,6 +91,41 @@ def charges(times: pd.DatetimeIndex, model: UnitModel) -> tuple[np.ndarray, np.n
     return np.asarray(charge, dtype=int), tos, fresh, starts
 
 
+def dynamic_rates(series: pd.DataFrame, model: UnitModel) -> dict[str, np.ndarray]:
+    """Rates of reaction from the dynamic balances, r_j = xi_j / V with F_in - F_out - d(V C)/dt = nu xi.
+
+    The accumulation d(V C_i)/dt of each reconciled outlet concentration by a Savitzky-Golay
+    derivative (Savitzky & Golay 1964) over 5 rows; extents by least squares on the measured
+    species (:func:`kinetrace.chemistry.extents_from_flows`). Where they are not determined, the
+    steady rates (``rate:<rxn>``) are kept. Near steady state the two agree; after a set-point step
+    the dynamic ones stay right while the steady ones lag. [mol/(m^3 s)]
+    """
+    from ..chemistry import extents_from_flows
+    from .derivatives import smoothed_derivative
+
+    n = len(series)
+    out = {rid: series[f"rate:{rid}"].to_numpy(dtype=float) for rid in model.reaction_ids if f"rate:{rid}" in series}
+    needed = ("feed_flow", "outlet_flow", "volume")
+    if n < 5 or any(c not in series for c in needed):
+        return out
+
+    def conc(role):
+        return np.column_stack([series[c].to_numpy(dtype=float) if (c := f"reconciled:{role_column(role, sp)}") in series
+                                else np.full(n, np.nan) for sp in model.species])
+
+    q_in, q_out, vol = (series[c].to_numpy(dtype=float) for c in needed)
+    c_in, c_out = conc("feed_conc"), conc("outlet_conc")
+    dt = float(np.median(np.diff(series.index.asi8))) / 1e9
+    acc = smoothed_derivative(vol[:, None] * c_out, dt)
+    with np.errstate(invalid="ignore", divide="ignore"):
+        xi = extents_from_flows(q_in[:, None] * c_in, q_out[:, None] * c_out + acc, model.nu)
+        rates = xi / vol[:, None]
+    for j, rid in enumerate(model.reaction_ids):
+        if rid in out:
+            out[rid] = np.where(np.isfinite(rates[:, j]), rates[:, j], out[rid])
+    return out
+
+
 def stretch_means(series: pd.DataFrame, model: UnitModel) -> pd.DataFrame:
     """Means over steady stretches (<= 12 rows, one charge) of rates, concentrations and temperature.
 
@@ -98,7 +133,8 @@ def stretch_means(series: pd.DataFrame, model: UnitModel) -> pd.DataFrame:
     ----------
     series : DataFrame
         Back-calculated series with ``steady``, ``running``, ``temperature`` [K], ``rate:<rxn>``
-        [mol/(m^3 s)] and ``reconciled:outlet_conc:<species>`` [mol/m^3].
+        [mol/(m^3 s)] and ``reconciled:outlet_conc:<species>`` [mol/m^3]; the rates averaged are those
+        of the dynamic balances (:func:`dynamic_rates`).
     model : UnitModel
 
     Returns
@@ -122,9 +158,9 @@ def stretch_means(series: pd.DataFrame, model: UnitModel) -> pd.DataFrame:
     cols = {"temperature": series["temperature"].to_numpy(dtype=float),
             "time": series.index.asi8.astype(float) / 1e9, "charge": charge.astype(float),
             "time_on_stream": tos}
-    for rid in model.rate_laws:
-        if f"rate:{rid}" in series:
-            cols[f"rate:{rid}"] = series[f"rate:{rid}"].to_numpy(dtype=float)
+    for rid, r in dynamic_rates(series, model).items():
+        if rid in model.rate_laws:
+            cols[f"rate:{rid}"] = r
     for sp in {s for law in model.rate_laws.values() for s in _species_of(law)}:
         c = series.get(f"reconciled:{role_column('outlet_conc', sp)}")
         if c is not None:

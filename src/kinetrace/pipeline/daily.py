@@ -17,6 +17,7 @@ import pandas as pd
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError, KinetraceError
 from .backcalc import back_calculate
+from .feed import analysed_flags, monitoring_feed
 from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
 from .kinetics_step import fit_history, k_ref_band
 from .reconciliation import reconcile_unit
@@ -99,6 +100,7 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     series = series.join(measured[[c for c in MEASURED_COLUMNS if c in measured]
                                   + [c for c in measured if c.startswith("k_ref:")]].add_suffix("_measured"))
     series["fitted_parameters"] = 1.0 if outcome.model is not None else 0.0
+    series = series.join(analysed_flags(roles, model))
     series = series.join(k_ref_band(series, used, rec.roles, extra_sd=parameter_uncertainty(series, used, outcome.calibration)))
     if keep_from is not None:
         series = series.loc[series.index >= keep_from]
@@ -141,6 +143,10 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     result.summary = summarise(series, model, faults=rec.faults)
     if result.assessment is not None:
         result.summary.update(_assessment_summary(result.assessment))
+        result.kinetic_parameters = pd.concat([result.kinetic_parameters, pd.DataFrame([{
+            "name": "feed_basis", "value": float(result.assessment.feed_basis.count("analysed")),
+            "unit_of_measure": "-", "method": result.assessment.feed_basis}])], ignore_index=True)
+    result.summary["parameters"] = outcome.statement
     return result
 
 
@@ -152,6 +158,7 @@ def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame, *, decay_m
     """The monitoring stage (catalyst trend, drift alarms, production, forecast, what-if) of one unit."""
     from ..monitor import assess_unit, volume_limits_from_level
 
+    feed, key_feed, feed_text = monitoring_feed(series, model)
     unit_cfg = next(u for u in cfg.units if u.id == model.id)
     vol_limits = None
     if model.level_table is not None and unit_cfg.limits.level is not None:
@@ -166,16 +173,18 @@ def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame, *, decay_m
         # out of the trend and the charts, while production still counts every hour
         monitored = series.copy()
         monitored.loc[~monitored["steady"].astype(bool), "activity"] = np.nan
-        return assess_unit(monitored, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
-                           volume_limits=vol_limits, arl0=DRIFT_ARL0, plan_feed_flow=model.plan_feed_flow,
-                           decay_method=decay_method)
+        res = assess_unit(monitored, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
+                          volume_limits=vol_limits, arl0=DRIFT_ARL0, plan_feed_flow=model.plan_feed_flow,
+                          decay_method=decay_method, feed_conc=feed, key_feed_conc=key_feed)
+        res.feed_basis = feed_text
+        return res
     except KinetraceError as exc:
         log.warning("unit %s: monitoring stage skipped: %s", model.id, exc)
         return None
 
 
 def _assessment_summary(a) -> dict:
-    out = {"forecast": a.forecast.text if a.forecast is not None else "",
+    out = {"forecast": a.forecast.text if a.forecast is not None else "", "feed_basis": a.feed_basis,
            "open_alarms": sum(1 for x in a.alarms if a.as_of - x.detected < a.open_for)}
     if a.trend is not None:
         out["decay_law"] = a.trend.fit.method
