@@ -110,3 +110,26 @@ def test_narrow_temperature_span_holds_ea(tmp_path):
     assert row["method"].startswith("held at the configured value: the steady stretches span")
     assert "temperature range cannot determine Ea" in row["method"]
     assert any("activation_energy held" in m for m in res.calibration.problems)
+
+
+@pytest.mark.slow
+@pytest.mark.parametrize("kind", ["saturating", "series"])
+def test_intervals_cover_the_truth_over_ten_seeds(kind, tmp_path):
+    """Rough start, seeds 0-9 (the first ten, not chosen): every parameter's 95 % interval holds the
+    simulator's value in at least 9 of the 10 (issue goal: >= 90 %).
+
+    Not a proof of calibration: on 40 seeds (0-9, 20-49) the saturating unit's decay constant was
+    covered in 36 (90 %), k_ref and Ea in 38, K in 39; the standardised errors had sd 1.19 for kd
+    (about 1.2 standard errors of that sd above 1) and 0.9-1.0 for the others; the series unit 20/20
+    on seeds 0-9 and 20-29 (our runs, recorded here as a regression reference).
+    """
+    hits, misses = {}, []
+    for seed in range(10):
+        truth, _, res = _run(kind, tmp_path / str(seed), ROUGH[kind], seed=seed)
+        p = res.kinetic_parameters.set_index("name")
+        for name, v in _truth_values(kind, truth).items():
+            ok = bool(p.loc[name, "ci_low"] <= v <= p.loc[name, "ci_high"])
+            hits[name] = hits.get(name, 0) + ok
+            if not ok:
+                misses.append((seed, name, v, p.loc[name, "ci_low"], p.loc[name, "ci_high"]))
+    assert min(hits.values()) >= 9, (hits, misses)
