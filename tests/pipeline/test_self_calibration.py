@@ -22,9 +22,11 @@ PRODUCT_MM = {"saturating": 0.1, "series": 0.11}   # kg/mol, as in the configs
 MAIN = {"saturating": "conversion", "series": "coupling"}
 
 
-def _run(kind, folder, start, seed=1, **plant_kw):
+def _run(kind, folder, start, seed=1, hook=None, **plant_kw):
     make = plants.saturating_plant if kind == "saturating" else plants.series_plant
     truth, readings = make(seed, **plant_kw)
+    if hook is not None:
+        readings = hook(readings, seed)
     target, crossing = plants.target_for_crossing(kind, truth, 30.0, PRODUCT_MM[kind])
     folder.mkdir(parents=True, exist_ok=True)
     csv = plants.write_export(readings, folder / "export.csv")

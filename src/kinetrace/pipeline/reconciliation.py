@@ -40,6 +40,7 @@ from ..config import UnitModel
 from ..errors import KinetraceError
 from ..reconcile import detect_persistent_bias, global_test, reconcile_cstr
 from ..reconcile import UnobservableError
+from ..reconcile.serial_error import location_standard_error
 from .backcalc import _utc
 from .derivatives import smoothed_derivative
 from .roles import role_column
@@ -318,11 +319,19 @@ def _faults(res, solve, idx, names, role_of, model, min_duration, k, h) -> list[
             ok = np.isfinite(diff) & other.converged
             if ok.sum() < 2:
                 continue
+            # per hour as a fraction of the value the others give (a meter's gain error is a
+            # fraction of its reading; a ratio of medians would mix in the process's own swings);
             # median, not mean: an hour whose level derivative is poor can give a wild estimate;
-            # its standard error from the MAD (x 1.4826 for a normal sd, x 1.2533 for a median)
-            med = float(np.median(diff[ok]))
-            mad = 1.4826 * float(np.median(np.abs(diff[ok] - med)))
-            estimates[cand] = (med, 1.2533 * mad / np.sqrt(ok.sum()), float(np.median(np.abs(other.x[ok, j]))))
+            # its standard error from the MAD, widened for the hours' serial correlation (effective
+            # sample size; kinetrace.reconcile.serial_error)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                rel = diff / other.x[:, j]
+            ok &= np.isfinite(rel)
+            if ok.sum() < 2:
+                continue
+            scale = float(np.median(np.abs(other.x[ok, j])))
+            estimates[cand] = (float(np.median(rel[ok])) * scale, location_standard_error(rel[ok], "median") * scale,
+                               scale)
         sensors = [c for c in sensors if c in estimates]
         if not sensors:
             continue

@@ -10,6 +10,7 @@ import numpy as np
 
 from ._errors import ReconciliationError
 from .results import Reconciliation
+from .serial_error import location_standard_error
 
 
 @dataclass(frozen=True)
@@ -30,7 +31,8 @@ class BiasEvent:
     magnitude : float
         Mean estimated bias over onset..end. [units of the sensor]
     magnitude_sd : float
-        Standard error of ``magnitude`` (white-noise assumption). [units of the sensor]
+        Standard error of ``magnitude``, widened for serial correlation (AR(1) effective sample
+        size, :func:`kinetrace.reconcile.serial_error.location_standard_error`). [units of the sensor]
     mean_standardized : float
         Mean standardised adjustment over the event (sign: reading high > 0). [-]
     primary : bool
@@ -186,7 +188,7 @@ def detect_persistent_bias(result: Reconciliation, time=None, *, k=0.5, h=5.0, c
                 bseg = bhat[a:end + 1, j]
                 bseg = bseg[np.isfinite(bseg)]
                 mag = float(np.mean(bseg)) if bseg.size else np.nan
-                msd = float(np.std(bseg, ddof=1) / np.sqrt(bseg.size)) if bseg.size > 1 else np.nan
+                msd = location_standard_error(bseg, "mean")
                 mz = float(np.mean(-result.standardized_adjustment[a:end + 1, j][~missing[a:end + 1, j]]))
                 events.append(BiasEvent(names[j], sign, int(a), int(alarm), int(end), time[a],
                                         time[alarm], time[end], mag, msd, mz))
