@@ -85,14 +85,24 @@ def _details(r) -> str:
                      f"activity {st['activity'].mean():.3f}")
     kp = r.kinetic_parameters
     if len(kp):
+        how = ""
         for _, row in kp.iterrows():
-            if np.isfinite(row.get("ci_low", np.nan)):
-                lines.append(f"  fitted {row['name']}: {row['value']:.4g} (95 % CI {row['ci_low']:.4g} to "
-                             f"{row['ci_high']:.4g}) {row['unit_of_measure']}")
+            if not np.isfinite(row.get("ci_low", np.nan)):
+                continue
+            method = str(row.get("method", ""))
+            # each parameter says whether the data determined it or why it is held
+            if method.startswith("held at the configured value"):
+                state = method.split("; configured")[0]
+            else:
+                state = "estimated from the data"
+                how = how or method.split("; configured")[0]
+            lines.append(f"  {row['name']}: {row['value']:.4g} (95 % CI {row['ci_low']:.4g} to "
+                         f"{row['ci_high']:.4g}) {row['unit_of_measure']}: {state}")
         verdict = kp.loc[kp["name"].str.startswith("rate_law_best"), "method"]
         if len(verdict):
             lines.append(f"  rate law: {verdict.iloc[0]}")
-        lines.append(f"  ({kp['method'].iloc[0]})")
+        if how:
+            lines.append(f"  ({how})")
     a = r.assessment
     if a is not None and a.forecast is not None:
         lines.append(f"  outlook: {a.forecast.text}")
