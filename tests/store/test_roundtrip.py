@@ -158,3 +158,55 @@ def test_unit_of_measure_cannot_change(sqlite_url):
 def test_unsupported_url_is_refused():
     with pytest.raises(StoreError, match="cannot be used|not supported"):
         open_store("nosuchdb://x")
+
+
+def test_long_parameter_method_text_round_trips(store_url):
+    # the calibration's reasons ("held at the configured value: the steady stretches span ...") are
+    # longer than 64 characters; schema version 1 bounded the column and PostgreSQL refused them
+    reason = "held at the configured value: " + "the steady stretches span 0.1 K only (< 3 K); " * 6
+    store = open_store(store_url)
+    with store.write_run((W0, W1), config_fingerprint=FP) as run:
+        run.write_parameters("R-210", pd.DataFrame([{"name": "activation_energy:addition", "value": 5e4,
+                                                    "ci_low": 1e4, "ci_high": 9e4, "unit_of_measure": "J/mol",
+                                                    "method": reason}]), as_of=W1)
+    assert store.parameters("R-210")["method"].tolist() == [reason]
+    store.close()
+
+
+@pytest.mark.postgres
+def test_version_1_store_is_upgraded(pg_db_url):
+    from sqlalchemy import create_engine, text
+
+    open_store(pg_db_url).close()
+    eng = create_engine(pg_db_url)
+    with eng.begin() as conn:   # make it a version-1 store: bounded column, version 1
+        conn.execute(text("ALTER TABLE parameters ALTER COLUMN method TYPE VARCHAR(64)"))
+        conn.execute(text("UPDATE store_meta SET value = '1' WHERE key = 'schema_version'"))
+    store = open_store(pg_db_url)
+    with eng.connect() as conn:
+        kind = conn.execute(text("SELECT data_type FROM information_schema.columns "
+                                 "WHERE table_name = 'parameters' AND column_name = 'method'")).scalar()
+        version = conn.execute(text("SELECT value FROM store_meta WHERE key = 'schema_version'")).scalar()
+    eng.dispose()
+    assert (kind, version) == ("text", "2")
+    store.close()
+
+
+@pytest.mark.postgres
+def test_calibrated_check_writes_to_postgresql(pg_db_url, tmp_path):
+    """The check on a simulated plant of the tests' own, store on the real PostgreSQL server: the
+    calibration's parameter rows (with their long reasons) are stored and read back."""
+    from kinetrace.pipeline import run_check
+    from tests.pipeline.test_self_calibration import ROUGH, plants
+
+    truth, readings = plants.saturating_plant(1, temps=(348.0,))
+    csv = plants.write_export(readings, tmp_path / "export.csv")
+    cfg = plants.write_config("saturating", tmp_path, csv, start=ROUGH["saturating"], target="10 t/d",
+                              change_day=truth.change_day)
+    run_check(cfg, store=pg_db_url)
+    store = open_store(pg_db_url)
+    p = store.parameters("K-41").set_index("name")
+    store.close()
+    assert p.loc["activation_energy:conversion", "method"].startswith(
+        "held at the configured value: the steady stretches span")
+    assert len(p.loc["activation_energy:conversion", "method"]) > 64

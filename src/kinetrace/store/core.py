@@ -127,6 +127,14 @@ def open_store(url: str, *, create: bool = True, echo: bool = False, base_dir=No
     return store
 
 
+def _upgrade_from_1(conn) -> None:
+    """Version 1 -> 2: ``parameters.method`` becomes unbounded text (the calibration's reasons are
+    longer than 64 characters; PostgreSQL refused them, SQLite never bounded them)."""
+    if conn.dialect.name == "postgresql":
+        conn.execute(text("ALTER TABLE parameters ALTER COLUMN method TYPE TEXT"))
+    conn.execute(update(store_meta).where(store_meta.c.key == "schema_version").values(value=str(SCHEMA_VERSION)))
+
+
 class Store:
     """Results store on one database; see the package docstring for the schema.
 
@@ -152,6 +160,8 @@ class Store:
             have = conn.execute(select(store_meta.c.value).where(store_meta.c.key == "schema_version")).scalar()
             if have is None:
                 conn.execute(insert(store_meta).values(key="schema_version", value=str(SCHEMA_VERSION)))
+            elif have == "1":
+                _upgrade_from_1(conn)
 
     def check_version(self) -> None:
         """Refuse a store written with another table layout."""

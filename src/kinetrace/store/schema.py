@@ -39,7 +39,7 @@ from sqlalchemy.types import TypeDecorator
 from ..errors import KinetraceError
 
 #: Version of the table layout; stored in ``store_meta`` and checked on open.
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
 
 #: Run states written to ``runs.status``.
 RUN_STATES = ("running", "complete", "failed")
@@ -199,7 +199,7 @@ parameters = Table(
     Column("ci_high", Double),
     Column("ci_level", Double),
     Column("unit_of_measure", String(64), nullable=False, default=""),
-    Column("method", String(64), nullable=False, default=""),
+    Column("method", Text, nullable=False, default=""),   # version 1: String(64)
     Column("run_id", Integer, ForeignKey("runs.run_id"), nullable=False),
 )
 
