@@ -32,20 +32,40 @@ def _fmt(x: float, spec: str) -> str:
     return "n/a" if x is None or not math.isfinite(x) else format(x, spec)
 
 
-def _print_summary(results, out_dir: Path) -> None:
+def _k_display(r, value: float) -> str:
+    """The main reaction's k_ref in engineering units (1/h, L/(mol h), ...)."""
+    from .report.names import engineering
+    from .units import rate_constant_unit
+
+    m = r.model
+    law = m.rate_laws.get(m.reaction_ids[0]) if m.reaction_ids else None
+    if law is None or value is None or not math.isfinite(value):
+        return "n/a"
+    v, unit = engineering("k_ref", value, rate_constant_unit(sum(law.params.get("orders", {}).values()) or 1.0))
+    return f"{v:.4g} {unit}"
+
+
+def _print_summary(results, out_dir: Path, verdicts=()) -> None:
     from rich.console import Console
     from rich.table import Table
 
+    console = Console()
+    if verdicts:
+        # the verdict of every unit first: state, how long, the main cause, what to look at next
+        console.print("Verdict (latest complete day):", highlight=False, markup=False)
+        for v in verdicts:
+            console.print(f"  - {v}", highlight=False, markup=False)
+        console.print("")
     table = Table(title="kinetrace daily check (last 24 h of data)")
-    for col in ("unit", "production kg/h", "target kg/h", "of target", "conversion", "k_ref (SI)", "activity",
-                "steady h", "status"):
-        table.add_column(col, justify="right" if col not in ("unit", "status") else "left")
+    for col in ("unit", "kg/h", "target", "%", "X", "k_ref", "activity", "steady h", "last 24 h"):
+        table.add_column(col, justify="right" if col not in ("unit", "last 24 h") else "left",
+                         no_wrap=col in ("unit", "k_ref"))
+    table.caption = "kg/h: production; target in kg/h; %: of target; X: conversion; k_ref at the reference temperature"
     for r in results:
         s = r.summary
         table.add_row(s["unit"], _fmt(s["production_kg_h"], ".0f"), _fmt(s["target_kg_h"], ".0f"),
-                      _fmt(100 * s["production_ratio"], ".1f") + " %", _fmt(s["conversion"], ".3f"),
-                      _fmt(s["k_ref"], ".3e"), _fmt(s["activity"], ".3f"), str(s["steady_hours"]), s["status"])
-    console = Console(width=max(110, Console().width))
+                      _fmt(100 * s["production_ratio"], ".1f"), _fmt(s["conversion"], ".3f"),
+                      _k_display(r, s["k_ref"]), _fmt(s["activity"], ".3f"), str(s["steady_hours"]), s["status"])
     console.print(table)
     for r in results:
         console.print(_details(r), highlight=False, markup=False)
@@ -80,11 +100,13 @@ def _details(r) -> str:
                  + (f"; latest {w['start'].iloc[-1]:%m-%d %H:%M} to {w['end'].iloc[-1]:%m-%d %H:%M}" if len(w) else ""))
     st = last.loc[last["steady"].astype(bool)]
     if len(st) and f"k_ref_low:{main}" in st:
-        lines.append(f"  k_ref ({main}), last 24 h steady mean: {st[f'k_ref:{main}'].mean():.4g} "
-                     f"(95 % band {st[f'k_ref_low:{main}'].mean():.4g} to {st[f'k_ref_high:{main}'].mean():.4g}) SI; "
-                     f"activity {st['activity'].mean():.3f}")
+        lines.append(f"  rate constant of {main} at the reference temperature, last 24 h steady mean: "
+                     f"{_k_display(r, st[f'k_ref:{main}'].mean())} (95 % band {_k_display(r, st[f'k_ref_low:{main}'].mean())}"
+                     f" to {_k_display(r, st[f'k_ref_high:{main}'].mean())}); activity {st['activity'].mean():.3f}")
     kp = r.kinetic_parameters
     if len(kp):
+        from .report.names import engineering, parameter_label
+
         how = ""
         for _, row in kp.iterrows():
             if not np.isfinite(row.get("ci_low", np.nan)):
@@ -96,8 +118,14 @@ def _details(r) -> str:
             else:
                 state = "estimated from the data"
                 how = how or method.split("; configured")[0]
-            lines.append(f"  {row['name']}: {row['value']:.4g} (95 % CI {row['ci_low']:.4g} to "
-                         f"{row['ci_high']:.4g}) {row['unit_of_measure']}: {state}")
+            label = parameter_label(row["name"])
+            if label is None:
+                continue
+            v, unit = engineering(row["name"], row["value"], row["unit_of_measure"])
+            lo, _ = engineering(row["name"], row["ci_low"], row["unit_of_measure"])
+            hi, _ = engineering(row["name"], row["ci_high"], row["unit_of_measure"])
+            unit = "" if unit in ("-", "") else f" {unit}"
+            lines.append(f"  {label}: {v:.4g}{unit} (95 % interval {lo:.4g} to {hi:.4g}): {state}")
         verdict = kp.loc[kp["name"].str.startswith("rate_law_best"), "method"]
         if len(verdict):
             lines.append(f"  rate law: {verdict.iloc[0]}")
@@ -196,14 +224,18 @@ def _write_report(config: Path, day=None, out: Path | None = None):
         store.close()
 
 
-def _attention(config: Path) -> list[str]:
-    from .report import alert_reasons
+def _attention(config: Path) -> tuple[list[str], list[str]]:
+    """Reasons to alert and the verdict sentences, from the store (latest complete day)."""
+    from .report import ReportError, attention_reasons, collect
 
     cfg, store = _open_store(config)
     try:
-        return alert_reasons(store, tz=cfg.site.timezone)
+        content = collect(store, tz=cfg.site.timezone)
+    except ReportError as exc:
+        return [str(exc)], []
     finally:
         store.close()
+    return attention_reasons(content), [u.verdict.sentence for u in content.units if u.verdict is not None]
 
 
 @app.command()
@@ -225,14 +257,14 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
     try:
         since, until = iso_window(since, until)
         results, out_dir = _run(config, since, until, out, incremental)
-        reasons = _attention(config)
+        reasons, verdicts = _attention(config)
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("running the check", config, out) from None
     if results:
-        _print_summary(results, out_dir)
+        _print_summary(results, out_dir, verdicts)
     else:
         typer.echo("No new data since the last run; results unchanged.")
     if reasons:

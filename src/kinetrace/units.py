@@ -229,6 +229,33 @@ def parse_rate_constant(text: str, overall_order: float) -> float:
     return float(q.to(want).magnitude)
 
 
+def convert(value, from_unit: str, to_unit: str):
+    """Convert a value between two units of one dimension (pint); offsets (degC, degF) handled.
+
+    >>> round(convert(1e-3, "m3/(mol s)", "L/(mol h)"), 6), convert(343.15, "K", "degC")
+    (3600.0, 70.0)
+    """
+    q = ureg.Quantity(value, _units(from_unit))
+    try:
+        return q.to(_units(to_unit)).magnitude
+    except pint.errors.DimensionalityError:
+        raise UnitError(f"cannot convert {from_unit!r} to {to_unit!r}: different dimensions") from None
+
+
+def rate_constant_unit(overall_order: float) -> str:
+    """SI unit of the rate constant of a law of overall order n, (m3/mol)^(n-1)/s, as text pint reads.
+
+    >>> rate_constant_unit(1), rate_constant_unit(2), rate_constant_unit(1.5)
+    ('1/s', 'm3/(mol s)', '(m3/mol)**0.5/s')
+    """
+    n = float(overall_order)
+    if n == 1:
+        return "1/s"
+    if n == 2:
+        return "m3/(mol s)"
+    return f"(m3/mol)**{n - 1:g}/s"
+
+
 #: Measured kinds a tag of each SI kind may be read in; the first is the kind itself.
 #: A mass flow becomes a volumetric flow through a density; a mass fraction or a mass
 #: concentration becomes a molar concentration through a molar mass (and a density).

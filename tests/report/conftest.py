@@ -1,6 +1,6 @@
 """A results store filled with eight synthetic daily runs of an invented plant (three units).
 
-R-210: short of target on the report day; R-340: on target (its day row rewritten);
+R-210: below target on the report day; R-340: on target (its day row rewritten);
 R-455: an open alarm but no production rows ("no data").
 """
 

@@ -100,7 +100,7 @@ def test_report_renders_for_every_unit(report):
         assert f"id='unit-{unit}'" in html
     statuses = {u.unit: u.status for u in files.content.units}
     # R-210 made 23,358 kg against 24,000 kg (synthetic); R-340 rewritten to 24,500 kg; R-455 has no rows
-    assert statuses == {"R-210": "short of target", "R-340": "on target", "R-455": "no data"}
+    assert statuses == {"R-210": "below target", "R-340": "on target", "R-455": "no data"}
     assert html.count("<svg") == 4              # a production and an activity chart for
     assert "Sudden step on R455-FT-201" in html and "feed flow fell by 0.35 m3/h in one step" in html
 
@@ -219,8 +219,11 @@ def test_quality_counts_in_html_and_xlsx(report, filled_store):
 def test_attention_reasons_name_units_below_target_or_with_open_alarms(report):
     files, _ = report
     reasons = attention_reasons(files.content)
-    assert "unit R-210: short of target on 2026-11-30" in reasons
-    assert "unit R-455: no data on 2026-11-30" in reasons and "unit R-455: 1 open alarm(s)" in reasons
+    # the synthetic R-210 is below target on each of the eight stored days
+    assert "unit R-210: below target for 8 days (since 23 Nov)" in reasons
+    # each open alarm is named, not counted
+    assert "unit R-455: no data on 30 Nov" in reasons
+    assert "unit R-455: open alarm: sudden step in R455-FT-201 since 30 Nov" in reasons
     assert not any(r.startswith("unit R-340: on target") for r in reasons)
 
 

@@ -65,6 +65,7 @@ from kinetrace.errors import DataQualityError, KinetraceError
 from kinetrace.kinetics.arrhenius import R_GAS
 from kinetrace.kinetics.deactivation import DECAY_LAWS
 from kinetrace.kinetics.ratelaws import driving_force
+from kinetrace.units import rate_constant_unit
 
 __all__ = ["LawSpec", "Calibration", "calibrate", "DEFAULT_UNCERTAINTY", "DECAY_FAMILIES"]
 
@@ -340,7 +341,9 @@ def _report(p: _P, v: float) -> float:
     return float(v)
 
 
-def _unit(p: _P) -> str:
+def _unit(p: _P, laws: Mapping | None = None) -> str:
+    if p.kind == "k_ref" and laws is not None and p.reaction in laws:
+        return rate_constant_unit(sum(laws[p.reaction].params["orders"].values()))
     return {"k_ref": "SI", "activation_energy": "J/mol", "adsorption": "m3/mol", "a0": "-",
             "order": "-"}.get(p.kind, "1/s" if p.name in ("kd", "b") else "-")
 
@@ -586,7 +589,7 @@ def calibrate(rates: Mapping[str, np.ndarray], conc: Mapping[str, np.ndarray], t
         lo_r, hi_r = sorted((_report(p, lo_i), _report(p, hi_i))) if np.isfinite(lo_i) else (np.nan, np.nan)
         se_r = se_i * val if p.kind in ("k_ref", "adsorption", "a0") else se_i * (_report(p, 1.0) - _report(p, 0.0))
         rows.append({"reaction": p.reaction, "name": p.name, "value": val, "std_error": abs(se_r),
-                     "ci_low": lo_r, "ci_high": hi_r, "ci_level": level, "unit_of_measure": _unit(p),
+                     "ci_low": lo_r, "ci_high": hi_r, "ci_level": level, "unit_of_measure": _unit(p, laws),
                      "status": status, "reason": reason,
                      "configured": _report(p, p.configured) if np.isfinite(p.configured) else np.nan})
     frame = pd.DataFrame(rows)

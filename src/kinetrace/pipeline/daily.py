@@ -16,6 +16,7 @@ import pandas as pd
 
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError, KinetraceError
+from ..units import rate_constant_unit
 from .backcalc import back_calculate
 from .feed import analysed_flags, monitoring_feed
 from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
@@ -281,7 +282,7 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
             basis = res.series.attrs.get("fresh_basis", {})
             if fresh:
                 run.write_parameters(uid, pd.DataFrame([
-                    {"name": f"k_ref_fresh:{rid}", "value": v, "unit_of_measure": "SI",
+                    {"name": f"k_ref_fresh:{rid}", "value": v, "unit_of_measure": _k_unit(res.model, rid),
                      "method": basis.get(rid, "")} for rid, v in fresh.items()]))
             if res.faults:
                 run.write_alarms(uid, pd.DataFrame([{
@@ -323,6 +324,11 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
 INCREMENTAL_CONTEXT = "3D"
 #: Earlier results taken from the store for the trend, the charts and the rate-law fit. [time span]
 INCREMENTAL_HISTORY = "365D"
+
+
+def _k_unit(model: UnitModel, rid: str) -> str:
+    law = model.rate_laws.get(rid)
+    return rate_constant_unit(sum(law.params.get("orders", {}).values()) or 1.0) if law is not None else "SI"
 
 
 def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str | Path | None = None,

@@ -20,6 +20,7 @@ import pandas as pd
 
 from ..config import UnitModel
 from ..errors import KinetraceError
+from ..units import rate_constant_unit
 from ..kinetics import arrhenius, ratelaws
 from ..kinetics.estimation import compare_models, fit_rate_law
 from ..kinetics.steady import steady_windows
@@ -136,7 +137,8 @@ def _fit_at_fixed_ea(means: pd.DataFrame, law, rid: str, species: list[str]) -> 
     q = stats.t.ppf(0.975, max(n - p, 1))
     method = f"{law.method}, least squares over {n} steady stretches, activity-corrected, Ea held at configured value"
     out = []
-    for i, (name, unit) in enumerate([(f"k_ref_fitted:{rid}", "SI")] + [(f"K_{sp}:{rid}", "m3/mol") for sp in ads]):
+    k_unit = rate_constant_unit(sum(law.params.get("orders", {}).values()) or 1.0)
+    for i, (name, unit) in enumerate([(f"k_ref_fitted:{rid}", k_unit)] + [(f"K_{sp}:{rid}", "m3/mol") for sp in ads]):
         se = float(np.sqrt(max(cov[i, i], 0.0)))
         v = float(np.exp(sol.x[i]))
         # log-parameter: value times exp(+-q se), and the standard error by the delta method
@@ -199,7 +201,7 @@ def fit_history(series: pd.DataFrame, model: UnitModel, activity_trend: pd.Serie
     comparison = compare_models(fits) if len(fits) > 1 else None
     fit = fits[law.method]
     out = []
-    names = {"k_ref": (f"k_ref_fitted:{rid}", "SI"), "activation_energy": (f"activation_energy:{rid}", "J/mol")}
+    names = {"k_ref": (f"k_ref_fitted:{rid}", rate_constant_unit(sum(law.params.get("orders", {}).values()) or 1.0)), "activation_energy": (f"activation_energy:{rid}", "J/mol")}
     for key, value in fit.estimates.items():
         name, unit = names.get(key, (f"{key}:{rid}", "m3/mol"))
         lo, hi = fit.ci95[key]

@@ -28,7 +28,9 @@ kinetrace.report.content.ReportError: the results store holds no daily productio
 ...     _ = run.write_daily("R-210", day)
 >>> files = build_report(store, tempfile.mkdtemp())
 >>> files.html.name, files.content.units[0].status, alert_reasons(store)
-('kinetrace-day-2026-11-30.html', 'short of target', ['unit R-210: short of target on 2026-11-30'])
+('kinetrace-day-2026-11-30.html', 'below target', ['unit R-210: below target on 30 Nov'])
+>>> files.content.units[0].verdict.sentence
+'R-210 below target on 30 Nov: feed below plan; conversion below expectation. Next: the feed rate against plan.'
 """
 
 from __future__ import annotations

@@ -17,9 +17,10 @@ import pandas as pd
 
 from ..errors import KinetraceError
 from ..store import GAP_PARTS, Store
+from .verdict import STATES, Verdict, build_verdict, day_state
 
-#: Report statuses of a unit, worst first.
-STATUSES = ("no data", "short of target", "on target")
+#: Report statuses of a unit, worst first (the verdict's states).
+STATUSES = STATES
 
 #: Days in the week block of the report, the report day included. [d]
 WEEK_DAYS = 7
@@ -84,6 +85,8 @@ class UnitReport:
     watermark: pd.Timestamp | None = None
     quality: pd.DataFrame = field(default_factory=pd.DataFrame)   # per-tag counts of the day's periods
     complete: bool = False                                         # data processed to the day's end
+    verdict: Verdict | None = None                                 # the sentence that opens every output
+    so_far: dict | None = None                                     # daily row of the day in progress
 
 
 @dataclass
@@ -115,13 +118,18 @@ def day_span(day: dt.date, tz: str) -> tuple[pd.Timestamp, pd.Timestamp]:
 
 
 def _status(day: dict[str, Figure]) -> str:
-    prod, target = day.get("production_kg"), day.get("target_kg")
-    if prod is None or target is None or not (prod.known and target.known):
+    if not day:
         return "no data"
-    return "short of target" if prod.value < target.value else "on target"
+    return day_state({k: f.value for k, f in day.items()})
 
 
-def _unit_report(store: Store, unit: str, day: dt.date, span, daily: pd.DataFrame) -> UnitReport:
+def _complete(watermark, day: dt.date, tz: str) -> bool:
+    """The unit's data reach the end of the local day (within one hour); without a watermark
+    (daily rows written without series) nothing says the day is still in progress."""
+    return watermark is None or pd.isna(watermark) or watermark >= day_span(day, tz)[1] - pd.Timedelta(hours=1)
+
+
+def _unit_report(store: Store, unit: str, day: dt.date, span, daily: pd.DataFrame, tz: str = "UTC") -> UnitReport:
     rows = daily.loc[daily["unit_id"] == unit]
     today = rows.loc[rows["day"] == day]
     figs: dict[str, Figure] = {}
@@ -159,8 +167,19 @@ def _unit_report(store: Store, unit: str, day: dt.date, span, daily: pd.DataFram
         s = store.series(unit, ["activity"], end - pd.Timedelta(days=TREND_DAYS), end)["activity"]
         ur.trend = s.resample("1h").mean().dropna() if len(s) else None
     ur.watermark = store.watermark(unit)
-    ur.complete = ur.watermark is not None and ur.watermark >= end - pd.Timedelta(hours=1)
+    ur.complete = _complete(ur.watermark, day, tz)
     ur.quality = store.quality(unit, start, end)
+    # the verdict judges complete days only; the day in progress is said apart
+    later = rows.loc[rows["day"] > day].sort_values("day")
+    if len(later) and not _complete(ur.watermark, later["day"].iloc[0], tz):
+        ur.so_far = later.iloc[0].to_dict()
+    done = rows.loc[rows["day"] <= day] if ur.complete else rows.loc[rows["day"] < day]
+    judged = day if ur.complete or not len(done) else max(done["day"])
+    if not ur.complete and len(today):
+        ur.so_far = today.iloc[0].to_dict()
+    ur.verdict = build_verdict(unit, judged, done, alarms_open=ur.alarms_open, forecast=ur.forecast,
+                               so_far_row=ur.so_far)
+    ur.status = ur.verdict.state
     return ur
 
 
@@ -188,7 +207,11 @@ def collect(store: Store, day=None, *, tz: str = "UTC", site: str = "", units=No
     if day is None:
         if daily_all.empty:
             raise ReportError("the results store holds no daily production rows; run the daily check first")
-        day = max(daily_all["day"])
+        # the latest complete day: a day whose data end mid-day is not judged against a full day's target
+        marks = store.watermarks()
+        newest = marks["last_ts"].max() if len(marks) else None
+        days = sorted(set(daily_all["day"]), reverse=True)
+        day = next((d for d in days if _complete(newest, d, tz)), days[-1])
     try:
         day = pd.Timestamp(day).date()
     except (TypeError, ValueError):
@@ -199,7 +222,7 @@ def collect(store: Store, day=None, *, tz: str = "UTC", site: str = "", units=No
         units = sorted(found)
     if not units:
         raise ReportError("the results store holds no units; run the daily check first")
-    reports = [_unit_report(store, u, day, span, daily_all) for u in units]
+    reports = [_unit_report(store, u, day, span, daily_all, tz) for u in units]
     runs = store.runs()
     done = runs.loc[runs["status"] == "complete"]
     last = done.iloc[-1].to_dict() if len(done) else None
@@ -208,7 +231,8 @@ def collect(store: Store, day=None, *, tz: str = "UTC", site: str = "", units=No
 
 
 def attention_reasons(content: ReportContent) -> list[str]:
-    """Plain reasons a scheduler should alert on: a unit below target, without data, or with an open alarm.
+    """Plain reasons a scheduler should alert on: a unit not on target on its latest complete day, or
+    with an open alarm (each alarm named). The day in progress never counts.
 
     Returns
     -------
@@ -217,8 +241,10 @@ def attention_reasons(content: ReportContent) -> list[str]:
     """
     out = []
     for u in content.units:
-        if u.status != "on target":
-            out.append(f"unit {u.unit}: {u.status} on {content.day.isoformat()}")
-        if len(u.alarms_open):
-            out.append(f"unit {u.unit}: {len(u.alarms_open)} open alarm(s)")
+        v = u.verdict
+        if v is None:
+            continue
+        if v.state != "on target":
+            out.append(f"unit {u.unit}: {v.headline}")
+        out += [f"unit {u.unit}: open alarm: {a}" for a in v.alarms]
     return out

@@ -16,7 +16,7 @@ from .content import Figure, ReportContent, UnitReport, iso
 from .svg import COLOURS, production_bars, trend_line
 from .wording import CAUTIONS, alarm_sentence, gap_sentence, number, quality_word, sig, when, whatif_sentence
 
-STATUS_CLASS = {"on target": "met", "short of target": "short", "no data": "nodata"}
+STATUS_CLASS = {"on target": "met", "below target": "short", "down": "down", "no data": "nodata"}
 
 _CSS = f"""
 body {{ font-family: "Segoe UI", "DejaVu Sans", Arial, sans-serif; color: {COLOURS['ink']};
@@ -33,7 +33,9 @@ td.n, th.n {{ text-align: right; font-variant-numeric: tabular-nums; }}
 .badge {{ display: inline-block; padding: 1px 9px; border-radius: 10px; color: #fff; font-size: 0.85em;
           margin-left: 8px; vertical-align: 2px; }}
 .met {{ background: {COLOURS['met']}; }} .short {{ background: {COLOURS['short']}; }}
-.nodata {{ background: #7a7a7a; }}
+.nodata {{ background: #7a7a7a; }} .down {{ background: #4d5b66; }}
+.verdicts {{ padding-left: 18px; margin: 6px 0 14px 0; }} .verdicts li {{ margin: 3px 0; }}
+.verdict {{ font-size: 1.0em; margin: 4px 0 8px 0; }}
 .charts {{ display: flex; flex-wrap: wrap; gap: 12px; }}
 .caution {{ border-left: 4px solid {COLOURS['short']}; background: #fbf1ec; padding: 6px 10px;
             font-size: 0.9em; margin: 6px 0; }}
@@ -66,6 +68,13 @@ def _summary_table(content: ReportContent) -> str:
             f"<td class='n'>{fig(u.week['production_kg'])}</td><td class='n'>{fig(u.week['target_kg'])}</td>"
             f"<td class='n'>{len(u.alarms_open)}</td></tr>")
     return f"<table class='summary'>{head}{''.join(rows)}</table>"
+
+
+def _verdicts(content: ReportContent) -> str:
+    """The verdict sentence of every unit, first on the page (kinetrace.report.verdict)."""
+    items = [f"<li><span class='badge {STATUS_CLASS[u.status]}'>{escape(u.status)}</span> "
+             f"{escape(u.verdict.sentence)}</li>" for u in content.units if u.verdict is not None]
+    return f"<ol class='verdicts'>{''.join(items)}</ol>" if items else ""
 
 
 def _production_block(u: UnitReport, content: ReportContent) -> str:
@@ -180,6 +189,7 @@ def _unit_section(u: UnitReport, content: ReportContent) -> str:
     return (f"<section class='unit' id='unit-{escape(u.unit)}'><h2>{escape(u.unit)}"
             f"<span class='badge {STATUS_CLASS[u.status]}'>{escape(u.status)}</span></h2>"
             f"<div class='sub'>Data processed up to {escape(mark)}{escape(note)}</div>"
+            + (f"<p class='verdict'>{escape(u.verdict.sentence)}</p>" if u.verdict is not None else "") +
             f"{_charts(u)}{_production_block(u, content)}{_alarm_block(u, content)}{_quality_block(u)}"
             f"{_outlook_block(u)}{_parameter_block(u)}</section>")
 
@@ -209,7 +219,7 @@ def render_html(content: ReportContent) -> str:
         f"<style>{_CSS}</style></head><body>"
         f"<h1>{escape(title)}</h1><div class='sub'>{escape(site)}production day {escape(content.day.isoformat())} "
         f"({escape(content.tz)}; {escape(span)}) · {escape(run_text)}</div>"
-        f"{_summary_table(content)}"
+        f"{_verdicts(content)}{_summary_table(content)}"
         + "".join(_unit_section(u, content) for u in content.units)
         + f"<footer>Every number on this page is read from the results store; its row is named in the "
           f"number's tooltip. Generated {escape(when(content.generated))}.</footer></body></html>"

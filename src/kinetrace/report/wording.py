@@ -91,19 +91,35 @@ def whatif_sentence(row) -> str:
 
 
 def gap_sentence(gap: float, parts: dict[str, float]) -> str:
-    """The day's gap and its four causes in plain words.
+    """The day's gap and its four causes in plain, positive words (no double negatives).
 
     >>> gap_sentence(1000.0, {"gap_feed_kg": 600.0, "gap_conversion_kg": 400.0,
     ...                       "gap_downtime_kg": 0.0, "gap_data_kg": 0.0})
     'Short by 1,000 kg: feed below plan 600 kg, conversion below expectation 400 kg.'
+    >>> gap_sentence(-3061.0, {"gap_feed_kg": -1352.0, "gap_conversion_kg": -1709.0,
+    ...                        "gap_downtime_kg": 0.0, "gap_data_kg": 0.0})
+    'Ahead by 3,061 kg: feed above plan 1,352 kg, conversion above expectation 1,709 kg.'
+    >>> gap_sentence(200.0, {"gap_feed_kg": -300.0, "gap_conversion_kg": 500.0,
+    ...                      "gap_downtime_kg": 0.0, "gap_data_kg": 0.0})
+    'Short by 200 kg: conversion below expectation 500 kg; offset by feed above plan 300 kg.'
     """
     if not math.isfinite(gap):
         return "Gap unknown (no production data)."
-    names = {"gap_feed_kg": "feed below plan", "gap_conversion_kg": "conversion below expectation",
+    short = {"gap_feed_kg": "feed below plan", "gap_conversion_kg": "conversion below expectation",
              "gap_downtime_kg": "downtime", "gap_data_kg": "data too poor to judge"}
-    shown = [f"{names[k]} {number(v)} kg" for k, v in parts.items() if math.isfinite(v) and round(v) != 0]
+    ahead = {"gap_feed_kg": "feed above plan", "gap_conversion_kg": "conversion above expectation",
+             "gap_downtime_kg": "less downtime than planned", "gap_data_kg": "data correction"}
+    shown = {k: v for k, v in parts.items() if math.isfinite(v) and round(v) != 0}
+    against = [f"{short[k]} {number(v)} kg" for k, v in shown.items() if v > 0]
+    helping = [f"{ahead[k]} {number(-v)} kg" for k, v in shown.items() if v < 0]
+    main, other = (against, helping) if gap > 0 else (helping, against)
     head = f"Short by {number(gap)} kg" if gap > 0 else f"Ahead by {number(-gap)} kg"
-    return head + (": " + ", ".join(shown) + "." if shown else ".")
+    if not main and not other:
+        return head + "."
+    text = head + ": " + ", ".join(main)
+    if other:
+        text += ("; offset by " if main else "") + ", ".join(other)
+    return text + "."
 
 
 QUALITY_WORDS = {
