@@ -57,15 +57,16 @@ def _print_summary(results, out_dir: Path, verdicts=()) -> None:
             console.print(f"  - {v}", highlight=False, markup=False)
         console.print("")
     table = Table(title="kinetrace daily check (last 24 h of data)")
-    for col in ("unit", "kg/h", "target", "%", "X", "k_ref", "activity", "steady h", "last 24 h"):
+    for col in ("unit", "kg/h", "target", "%", "X", "k_ref", "activity", "last 24 h"):
         table.add_column(col, justify="right" if col not in ("unit", "last 24 h") else "left",
-                         no_wrap=col in ("unit", "k_ref"))
-    table.caption = "kg/h: production; target in kg/h; %: of target; X: conversion; k_ref at the reference temperature"
+                         no_wrap=col in ("unit", "kg/h", "target", "%", "X", "activity"), overflow="fold")
+    table.caption = ("kg/h: production; target in kg/h; %: of target; X: conversion; k_ref: rate constant at the "
+                     "reference temperature; steady hours and the rest in the detail below")
     for r in results:
         s = r.summary
         table.add_row(s["unit"], _fmt(s["production_kg_h"], ".0f"), _fmt(s["target_kg_h"], ".0f"),
                       _fmt(100 * s["production_ratio"], ".1f"), _fmt(s["conversion"], ".3f"),
-                      _k_display(r, s["k_ref"]), _fmt(s["activity"], ".3f"), str(s["steady_hours"]), s["status"])
+                      _k_display(r, s["k_ref"]), _fmt(s["activity"], ".3f"), s["status"])
     console.print(table)
     for r in results:
         console.print(_details(r), highlight=False, markup=False)
@@ -314,7 +315,7 @@ def demo(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c", help="Demo p
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("running the demo", config, None) from None
-    _print_summary(results, out_dir)
+    _print_summary(results, out_dir, [u.verdict.sentence for u in files.content.units if u.verdict is not None])
     typer.echo(f"Daily report: {files.html}")
     typer.echo(f"Workbook:     {files.xlsx}")
     typer.echo(f"Dashboard:    make dashboard   (or .venv/bin/kinetrace dashboard --config {config})")

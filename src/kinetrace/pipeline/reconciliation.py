@@ -69,8 +69,11 @@ class SensorFault:
         """Plain-language description of the fault."""
         direction = "high" if self.magnitude > 0 else "low"
         rel_sd = abs(self.magnitude_sd / self.magnitude * self.relative) if self.magnitude else float("nan")
-        text = (f"{self.role} ({', '.join(self.tags)}) reads {direction} by {abs(self.relative) * 100:.1f} % "
-                f"(+/- {rel_sd * 100:.2f} %) since about {self.onset:%Y-%m-%d %H:%M} UTC; "
+        # the 95 % interval, and the size given to the precision that interval allows
+        half = 196.0 * rel_sd
+        dec = int(min(3, max(1, -np.floor(np.log10(half))))) if np.isfinite(half) and half > 0 else 1
+        text = (f"{self.role} ({', '.join(self.tags)}) reads {direction} by {abs(self.relative) * 100:.{dec}f} % "
+                f"(95 % interval +/- {half:.{dec}f} %) since about {self.onset:%Y-%m-%d %H:%M} UTC; "
                 f"alarm raised {self.alarm:%Y-%m-%d %H:%M} UTC.")
         if self.ambiguous:
             alts = "; ".join(f"{r} {'high' if v > 0 else 'low'} by {abs(v) * 100:.1f} %" for r, v in self.alternatives.items())
