@@ -15,6 +15,7 @@ import pandas as pd
 import pytest
 
 from kinetrace.report import CAUTIONS, SHEETS, attention_reasons, build_report, collect
+from kinetrace.report.workbook import COLUMNS
 from kinetrace.store import GAP_PARTS, open_store
 
 from .conftest import DAY
@@ -146,14 +147,17 @@ def test_whatif_carries_the_cautions(report):
     from html import escape
     assert html.count(escape(CAUTIONS)) == 2          # once per unit with what-if rows (R-210, R-340)
     wb = openpyxl.load_workbook(files.xlsx)
-    assert wb["Outlook"]["A2"].value == CAUTIONS
+    assert wb["What-if"]["A2"].value == CAUTIONS
 
 
-def _sheet(wb, name, header_row=1):
+def _sheet(wb, name):
+    """A sheet as a frame keyed by the workbook's column keys (header row, units row, then data)."""
     ws = wb[name]
-    rows = list(ws.iter_rows(min_row=header_row, values_only=True))
-    head = rows[0]
-    body = [r for r in rows[1:] if any(v is not None for v in r)]
+    rows = list(ws.iter_rows(values_only=True))
+    start = 3 if name == "What-if" else 0
+    key = {head: k for k, head, _ in COLUMNS[name]}
+    head = [key[h] for h in rows[start] if h is not None]
+    body = [r[:len(head)] for r in rows[start + 2:] if any(v is not None for v in r)]
     return pd.DataFrame(body, columns=head)
 
 
@@ -175,34 +179,34 @@ def test_xlsx_numbers_equal_the_store(report, filled_store):
                                    rtol=XLSX_RTOL, atol=0, err_msg=c)
     assert [d.date() for d in sheet["day"]] == list(store_rows["day"])
     # summary: the day's figures and the week totals
-    summ = _sheet(wb, "Summary").set_index("unit_id")
+    summ = _sheet(wb, "Summary").set_index("unit")
     day = filled_store.daily(first_day=DAY, last_day=DAY).set_index("unit_id")
     for unit in day.index:
         for c in ("production_kg", "target_kg", "gap_kg", *GAP_PARTS):
             assert summ.loc[unit, c] == pytest.approx(day.loc[unit, c], rel=XLSX_RTOL, abs=0)
         week = store_rows.loc[store_rows["unit_id"] == unit, "production_kg"].sum()
         assert summ.loc[unit, "week_production_kg"] == pytest.approx(week, rel=1e-12)
-    assert summ.loc["R-455", "status"] == "no data" and summ.loc["R-455", "open_alarms"] == 1
+    assert summ.loc["R-455", "state"] == "no data" and summ.loc["R-455", "open_alarms"] == 1
     # parameters: newest set per unit
     par = _sheet(wb, "Parameters")
     ref = filled_store.parameters(as_of=pd.Timestamp("2026-12-01T00:00Z"))
     assert len(par) == len(ref) == 4
     for c in ("value", "std_error", "ci_low", "ci_high"):
         np.testing.assert_allclose(par[c].to_numpy(dtype=float), ref[c].to_numpy(), rtol=XLSX_RTOL, atol=0)
-    assert [pd.Timestamp(t, tz="UTC") for t in par["as_of_utc"]] == list(ref["as_of"])
+    assert [pd.Timestamp(t, tz="UTC") for t in par["as_of"]] == list(ref["as_of"])   # site time: UTC here
     # alarms: every row is a stored alarm with the same magnitude and times
     al = _sheet(wb, "Alarms")
     stored = filled_store.alarms()
     for _, r in al.iterrows():
         hit = stored.loc[(stored["unit_id"] == r["unit_id"]) & (stored["kind"] == r["kind"])
                          & (stored["variable"] == r["variable"])
-                         & (stored["detected"] == pd.Timestamp(r["detected_utc"], tz="UTC"))]
+                         & (stored["detected"] == pd.Timestamp(r["detected"], tz="UTC"))]
         assert len(hit) == 1
         assert hit["magnitude"].iloc[0] == pytest.approx(r["magnitude"], rel=XLSX_RTOL, abs=0)
         assert hit["state"].iloc[0] == r["state"]
     open_now = stored.loc[stored["state"] == "open"]
     assert set(open_now["unit_id"] + open_now["detected"].astype(str)) <= \
-        set(al["unit_id"] + al["detected_utc"].map(lambda t: str(pd.Timestamp(t, tz="UTC"))))
+        set(al["unit_id"] + al["detected"].map(lambda t: str(pd.Timestamp(t, tz="UTC"))))
 
 
 def test_quality_counts_in_html_and_xlsx(report, filled_store):
@@ -263,3 +267,27 @@ def test_alert_reasons_from_the_store(filled_store):
 
     assert alert_reasons(filled_store, DAY, tz="Europe/London") == attention_reasons(
         collect(filled_store, DAY, tz="Europe/London"))
+
+
+def test_workbook_for_operations(report):
+    """Verdict sheet first; readable headers over a units row, both frozen; state colours; native
+    charts of production against target and of activity; one table per sheet."""
+    from kinetrace.report.workbook import STATE_FILL
+
+    files, _ = report
+    wb = openpyxl.load_workbook(files.xlsx)
+    assert wb.sheetnames[0] == "Verdict"
+    for ws in wb.worksheets:
+        first = 4 if ws.title == "What-if" else 1
+        heads = [c.value for c in ws[first] if c.value is not None]
+        assert heads and not any("_" in h for h in heads), (ws.title, heads)   # readable, not snake_case
+        assert ws.freeze_panes == f"B{first + 2}", ws.title
+    v = _sheet(wb, "Verdict").set_index("unit")
+    assert v.loc["R-210", "sentence"] == next(u.verdict.sentence for u in files.content.units if u.unit == "R-210")
+    ws = wb["Verdict"]
+    for row in ws.iter_rows(min_row=3):
+        state = row[1].value
+        assert row[1].fill.fgColor.rgb.endswith(STATE_FILL[state]), state
+    assert wb["Daily production"]["C2"].value == "kg"                     # the units row
+    assert len(wb["Daily production"]._charts) == 2                       # R-210, R-340 have daily rows
+    assert len(wb["Activity"]._charts) >= 1

@@ -168,7 +168,10 @@ def _unit_report(store: Store, unit: str, day: dt.date, span, daily: pd.DataFram
         ur.trend = s.resample("1h").mean().dropna() if len(s) else None
     ur.watermark = store.watermark(unit)
     ur.complete = _complete(ur.watermark, day, tz)
-    ur.quality = store.quality(unit, start, end)
+    # data-quality counts of the period that covers the day (a run counts over its whole window)
+    q = store.quality(unit, None, end)
+    q = q.loc[(q["period_start"] < end) & (q["period_end"] > start)] if len(q) else q
+    ur.quality = q.loc[q["period_start"] == q["period_start"].max()].reset_index(drop=True) if len(q) else q
     # the verdict judges complete days only; the day in progress is said apart
     later = rows.loc[rows["day"] > day].sort_values("day")
     if len(later) and not _complete(ur.watermark, later["day"].iloc[0], tz):
