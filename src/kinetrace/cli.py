@@ -16,7 +16,7 @@ import typer
 from .cli_args import iso_day, iso_window
 from .errors import KinetraceError
 
-app = typer.Typer(add_completion=False, no_args_is_help=True,
+app = typer.Typer(add_completion=False, no_args_is_help=True, rich_markup_mode="markdown",
                   help="Daily performance check of continuous stirred-tank reactors.")
 
 ROOT = Path(__file__).resolve().parents[2]
@@ -244,7 +244,7 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
           since: str = typer.Option(None, help="Start of the period (ISO 8601; UTC unless an offset is given)."),
           until: str = typer.Option(None, help="End of the period (exclusive)."),
           out: Path = typer.Option(None, help="Output folder (default: analysis.output_dir of the config)."),
-          incremental: bool = typer.Option(False, "--incremental",
+          incremental: bool = typer.Option(False, "--incremental", metavar="",
                                            help="Only what is new since each unit's watermark in the store.")):
     """Back-calculate, reconcile and assess every unit; exit 1 when a unit needs attention.
 
@@ -296,7 +296,8 @@ def report(config: Path = typer.Option(..., "--config", "-c", help="Plant config
 def demo(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c", help="Demo plant configuration."),
          seed: int = typer.Option(20260901, help="Seed of the simulated sample historian."),
          days: int = typer.Option(90, help="Days of history to simulate."),
-         regenerate: bool = typer.Option(False, help="Simulate again even if the sample historian exists.")):
+         regenerate: bool = typer.Option(False, "--regenerate", metavar="",
+                                         help="Simulate again even if the sample historian exists.")):
     """Simulate the demo plant's historian (if needed) and run the daily check on it."""
     _setup_logging()
     from .config import load_config, resolve_path
@@ -327,7 +328,7 @@ def dashboard(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c",
               store_url: str = typer.Option(None, "--store-url",
                                             help="Results store URL (wins over KINETRACE_STORE_URL and the config)."),
               port: int = typer.Option(8501, "--port", help="Port on 127.0.0.1.")):
-    """Serve the dashboard (read-only view of the results store) on http://127.0.0.1:<port>/."""
+    """Serve the dashboard (read-only view of the results store) on http://127.0.0.1:PORT/ (PORT from --port)."""
     import os
     import subprocess
 
