@@ -11,6 +11,7 @@ from html.parser import HTMLParser
 
 import numpy as np
 import openpyxl
+import pint
 import pandas as pd
 import pytest
 
@@ -26,13 +27,15 @@ class _Numbers(HTMLParser):
 
     def __init__(self):
         super().__init__()
-        self.numbers, self.tags, self._open = [], [], None
+        self.numbers, self.tags, self._open, self.units = [], [], None, {}
 
     def handle_starttag(self, tag, attrs):
         a = dict(attrs)
         self.tags.append((tag, a))
         if tag == "span" and "data-src" in a:
             self._open = [a["data-src"], a["data-value"], ""]
+            if "data-unit" in a:     # shown in an engineering unit: (stored SI unit, shown unit)
+                self.units[a["data-src"]] = (a["data-si-unit"], a["data-unit"])
 
     def handle_data(self, data):
         if self._open is not None:
@@ -118,6 +121,10 @@ def test_every_html_number_equals_the_store(report, filled_store):
         assert got == want, src                   # stored value carried exactly
         # the shown text is the value rounded for display: parse it back
         text = re.sub(r"[^0-9eE.+\-−]", "", shown.split(" ")[0].replace(",", ""))
+        if src in parser.units:
+            # shown in an engineering unit: the stored SI value converted by pint (independent reference)
+            si, unit = parser.units[src]
+            want = pint.UnitRegistry().Quantity(want, si.replace("m3", "m**3")).to(unit.replace(" h", "*h")).magnitude
         assert float(text) == pytest.approx(want, rel=5e-3, abs=0.5), (src, shown)
 
 

@@ -133,18 +133,36 @@ def _quality_block(u: UnitReport) -> str:
 
 
 def _parameter_block(u: UnitReport) -> str:
+    """The newest parameters with readable names, in engineering units, and how each was determined
+    (the stored SI value is in each number's data-value)."""
     if u.parameters.empty:
         return ""
+    from .names import engineering, parameter_label
+
     rows = []
     for _, r in u.parameters.iterrows():
+        label = parameter_label(r["name"])
+        if label is None:
+            continue
         key = f"parameters|{u.unit}|{iso(r['as_of'])}|{r['name']}"
-        cells = [fig(Figure(float(r[c]), f"{key}|{c}"), digits=4) for c in ("value", "std_error", "ci_low", "ci_high")]
-        rows.append(f"<tr><td>{escape(r['name'])}</td>" + "".join(f"<td class='n'>{c}</td>" for c in cells)
-                    + f"<td>{escape(r['unit_of_measure'])}</td><td>{escape(r['method'])}</td></tr>")
+        shown = []
+        for c in ("value", "ci_low", "ci_high"):
+            v, unit = engineering(r["name"], float(r[c]), r["unit_of_measure"])
+            text = sig(v, 4)
+            conv = (f' data-si-unit="{escape(r["unit_of_measure"])}" data-unit="{escape(unit)}"'
+                    if unit != r["unit_of_measure"] else "")
+            shown.append(f'<span class="num" data-src="{escape(key)}|{c}" data-value="{escape(repr(float(r[c])))}"'
+                         f'{conv} title="{escape(key)}|{c}">{escape(text)}</span>')
+        _, unit = engineering(r["name"], float(r["value"]), r["unit_of_measure"])
+        how = str(r["method"]).split("; configured")[0]
+        rows.append(f"<tr><td>{escape(label)}</td>" + "".join(f"<td class='n'>{c}</td>" for c in shown)
+                    + f"<td>{escape('' if unit == '-' else unit)}</td><td>{escape(how)}</td></tr>")
+    if not rows:
+        return ""
     as_of = when(u.parameters["as_of"].iloc[0])
-    return (f"<h3>Fitted parameters (as of {escape(as_of)})</h3><table><tr><th>Name</th><th class='n'>Value</th>"
-            "<th class='n'>Std error</th><th class='n'>CI low</th><th class='n'>CI high</th><th>Unit</th>"
-            f"<th>Method</th></tr>{''.join(rows)}</table>")
+    return (f"<h3>Rate-law and activity parameters (as of {escape(as_of)})</h3><table><tr><th>Parameter</th>"
+            "<th class='n'>Value</th><th class='n'>95 % low</th><th class='n'>95 % high</th><th>Unit</th>"
+            f"<th>How it was determined</th></tr>{''.join(rows)}</table>")
 
 
 def _outlook_block(u: UnitReport) -> str:
