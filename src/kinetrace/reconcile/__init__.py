@@ -50,6 +50,15 @@ Gross errors
     min_duration=0.0, sensors=None) -> list[BiasEvent]`` (robust tabular CUSUM),
     ``cusum(u, k)``.
 
+Correlated errors
+    ``reconcile_linear``, ``reconcile_cstr`` and ``CSTRBalances.reconcile`` take
+    ``correlation=`` (an (n, n) matrix or ``{(name_a, name_b): rho}``); ``reconcile_linear``
+    also ``covariance=`` (a full (n, n) matrix instead of sigma). ``correlation_matrix(names,
+    pairs)``, ``split_covariance(cov, names) -> (sigma, R)`` and ``check_correlation(R, names)``
+    check symmetry and positive definiteness and name the offending variables. The global
+    and measurement tests then use the full covariance (objective and adjustment variances
+    come from ``V = diag(sigma) R diag(sigma)``).
+
 Uncertainty
     ``estimate_sigma(y, steady, method="pooled_std", min_length=10, names=None)
     -> SigmaEstimate``; ``sigma_methods()`` lists the methods. A ``SigmaEstimate`` may be
@@ -81,6 +90,7 @@ Errors
 from ._errors import ConvergenceError, ReconciliationError, UnobservableError
 from .classify import Classification, classify_variables
 from .closure import closure_table
+from .covariance import check_correlation, correlation_matrix, split_covariance
 from .cstr import CSTRBalances, CSTRReconciliation, reconcile_cstr
 from .gross_errors import (GlobalTest, MeasurementTest, SerialElimination, global_test,
                            measurement_test, serial_elimination, sidak_critical_value)
@@ -92,7 +102,8 @@ from .uncertainty import SigmaEstimate, estimate_sigma, sigma_methods
 __all__ = [
     "BiasEvent", "CSTRBalances", "CSTRReconciliation", "Classification", "ConvergenceError",
     "GlobalTest", "MeasurementTest", "Reconciliation", "ReconciliationError", "SerialElimination",
-    "SigmaEstimate", "UnobservableError", "classify_variables", "closure_table", "cusum", "detect_persistent_bias",
+    "SigmaEstimate", "UnobservableError", "check_correlation", "classify_variables", "closure_table",
+    "correlation_matrix", "cusum", "detect_persistent_bias", "split_covariance",
     "estimate_sigma", "global_test", "measurement_test", "reconcile_cstr", "reconcile_linear",
     "serial_elimination", "sidak_critical_value", "sigma_methods",
 ]
