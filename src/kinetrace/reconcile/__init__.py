@@ -95,12 +95,15 @@ from .cstr import CSTRBalances, CSTRReconciliation, reconcile_cstr
 from .gross_errors import (GlobalTest, MeasurementTest, SerialElimination, global_test,
                            measurement_test, serial_elimination, sidak_critical_value)
 from .linear import reconcile_linear
+from .network import Network, node_kinds
+from .network_solve import NetworkReconciliation, pack_measurements, reconcile_network
 from .persistence import BiasEvent, cusum, detect_persistent_bias
 from .results import Reconciliation
 from .uncertainty import SigmaEstimate, estimate_sigma, sigma_methods
 
 __all__ = [
-    "BiasEvent", "CSTRBalances", "CSTRReconciliation", "Classification", "ConvergenceError",
+    "BiasEvent", "CSTRBalances", "Network", "NetworkReconciliation", "node_kinds", "pack_measurements",
+    "reconcile_network", "CSTRReconciliation", "Classification", "ConvergenceError",
     "GlobalTest", "MeasurementTest", "Reconciliation", "ReconciliationError", "SerialElimination",
     "SigmaEstimate", "UnobservableError", "check_correlation", "classify_variables", "closure_table",
     "correlation_matrix", "cusum", "detect_persistent_bias", "split_covariance",

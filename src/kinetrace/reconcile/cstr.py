@@ -8,8 +8,9 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._compiled import cstr_kernel
-from ._errors import ConvergenceError, ReconciliationError
+from ._errors import ReconciliationError
 from ._kernel import _projection, row_scale
+from ._linearisation import iterate, pop_convergence
 from ._patterns import MISSING, check_inputs, group_patterns, solve_patterns
 from .classify import classify_variables
 from .linear import build_result
@@ -238,12 +239,7 @@ class CSTRBalances:
                                      corr)
                 for k, a in part.items():
                     out[k][idx] = a
-        conv, iters = out.pop("converged"), out.pop("iterations")
-        if nonconvergence == "raise" and not conv.all():
-            bad = np.flatnonzero(~conv)
-            raise ConvergenceError(
-                f"successive linearisation did not converge within {max_iter} iterations at "
-                f"{bad.size} of {T} steps (first: {bad[:5].tolist()})", bad)
+        conv, iters = pop_convergence(out, nonconvergence, max_iter)
         extra = {"n_species": self.n_species} | ({} if corr is None else {"correlation": corr})
         res = build_result(y, sigma, status, out, self.names, self.unknown_names, self.constraint_names,
                            source, conv, iters, extra)
@@ -304,37 +300,15 @@ class CSTRBalances:
         return solve_patterns(y, sigma, status, J, self.extent_matrix, b, full_cov, groups, minimal, corr)
 
     def _iterate(self, y, sigma, status, acc, groups, max_iter, tol, full_cov, corr=None):
-        T, n = y.shape
-        nr = len(self.reactions)
-        v, xi = self._start(y), np.zeros((T, nr))
-        conv = np.zeros(T, bool)
-        iters = np.zeros(T, int)
-        active = np.arange(T)
-        sd_x = sd_z = None
-        for it in range(1, max_iter + 1):
-            sub = (groups[0], groups[1][active])
-            acc_a = None if acc is None else acc[active]
-            va, xa = v[active], xi[active]
-            o = self._linearised(va, y[active], sigma[active], status[active], acc_a, sub,
-                                 False, minimal=it > 1, corr=corr)
-            if it == 1:  # step scales: sigma for measured, first-pass sd for the estimated
-                # tiny negative variances from round-off are zero
-                vx = np.sqrt(np.clip(np.nan_to_num(o["var_x"]), 0.0, None))
-                sd_x = np.where(status == 0, sigma, np.where(vx > 0, vx, np.abs(va) + 1e-300))
-                vz = np.sqrt(np.clip(np.nan_to_num(o["var_z"]), 0.0, None))
-                sd_z = np.where(vz > 0, vz, np.abs(np.nan_to_num(o["z"])) + 1e-300)
-            v_new = np.where(np.isfinite(o["x"]), o["x"], va)
-            xi_new = np.where(np.isfinite(o["z"]), o["z"], xa)
-            with np.errstate(over="ignore"):
-                step = np.max(np.abs(v_new - va) / sd_x[active], axis=1, initial=0.0)
-            step = np.maximum(step, np.max(np.abs(xi_new - xa) / sd_z[active], axis=1, initial=0.0))
-            v[active], xi[active] = v_new, xi_new
-            iters[active] = it
-            done = step < tol
-            conv[active[done]] = True
-            active = active[~done]
-            if active.size == 0:
-                break
+        T = y.shape[0]
+
+        def solve(active, va, minimal):
+            return self._linearised(va, y[active], sigma[active], status[active],
+                                    None if acc is None else acc[active], (groups[0], groups[1][active]),
+                                    False, minimal=minimal, corr=corr)
+
+        v, xi, conv, iters = iterate(solve, self._start(y), np.zeros((T, len(self.reactions))), sigma,
+                                     status, max_iter, tol)
         # statistics at the final linearisation point (one more closed-form pass)
         final = self._linearised(v, y, sigma, status, acc, groups, full_cov, minimal=False, corr=corr)
         # exact (not linearised) closure at the raw data with the estimated unknowns
