@@ -97,9 +97,10 @@ def random_network(rng):
     return net, x, sigma
 
 
-def slsqp_network(net, y, sigma, measured):
+def slsqp_network(net, y, sigma, measured, corr=None):
     """Reference: scipy SLSQP on min sum(((x - y)/sigma)^2 over measured) s.t. the balances,
-    over all flows, concentrations and extents (scaled by sigma or by the start)."""
+    over all flows, concentrations and extents (scaled by sigma or by the start); with a
+    correlation matrix ``corr`` (n, n) the weights are its inverse over the measured block."""
     n, nz = len(net.names), len(net.unknown_names)
     S, ns = net.n_streams, net.n_species
     ym = np.where(measured, y, np.nan)
@@ -113,9 +114,11 @@ def slsqp_network(net, y, sigma, measured):
     def unpack(u):
         return x0 + u[:n] * scale, u[n:] * zs
 
+    W = np.eye(int(measured.sum())) if corr is None else np.linalg.inv(corr[np.ix_(measured, measured)])
+
     def obj(u):
-        return float(np.sum((u[:n][measured] * scale[measured] + x0[measured] - y[measured]) ** 2
-                            / sigma[measured] ** 2))
+        d = (u[:n][measured] * scale[measured] + x0[measured] - y[measured]) / sigma[measured]
+        return float(d @ W @ d)
 
     def cons(u):
         x, z = unpack(u)

@@ -45,6 +45,25 @@ def test_published_distillation_column_against_slsqp():
     assert global_test(r).reject[0]
 
 
+def test_correlated_analyser_readings_against_slsqp():
+    # the two mass fractions of each stream come from one analyser: errors correlated -0.6
+    # (invented figure); reference: SLSQP with the full inverse covariance
+    net = column()
+    pairs = {(f"c[{s},x1]", f"c[{s},x2]"): -0.6 for s in ("F1", "F2", "F3")}
+    r = reconcile_network(net, COLUMN_Y, COLUMN_SIGMA, correlation=pairs, tol=1e-12)
+    y = np.array([COLUMN_Y[k] for k in net.names])
+    s = np.array([COLUMN_SIGMA[k] for k in net.names])
+    R = np.eye(9)
+    for a, b in pairs:
+        i, j = net.names.index(a), net.names.index(b)
+        R[i, j] = R[j, i] = -0.6
+    xs, _, sol = slsqp_network(net, y, s, np.ones(9, bool), corr=R)
+    assert np.max(np.abs(r.x[0] - xs) / s) < 1e-5
+    assert r.objective[0] == pytest.approx(sol.fun, rel=1e-6)
+    r0 = reconcile_network(net, COLUMN_Y, COLUMN_SIGMA)
+    assert np.max(np.abs(r0.x[0] - r.x[0]) / s) > 0.05  # the correlation is really used
+
+
 def test_classification_of_the_column():
     net = column()
     only_f2 = {k: v for k, v in COLUMN_Y.items() if k != "F[F2]"}
