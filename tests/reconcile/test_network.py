@@ -4,7 +4,7 @@ on random networks, classification, inputs."""
 import numpy as np
 import pytest
 
-from kinetrace.reconcile import (Network, ReconciliationError, UnobservableError, global_test,
+from kinetrace.reconcile import (Network, ReconciliationError, UnobservableError, closure_table, global_test,
                                  measurement_test, reconcile_network)
 
 from .network_cases import cvxpy_linearised, random_network, slsqp_network
@@ -126,11 +126,19 @@ def test_batched_steps_equal_single_steps_and_missing_values():
     assert np.isfinite(r.x[3, 0])  # estimated from the balances
 
 
-def test_gross_error_tests_run_over_the_whole_network():
+def test_gross_error_tests_closure_and_covariance_over_the_whole_network():
     net = column()
-    r = reconcile_network(net, COLUMN_Y, COLUMN_SIGMA)
+    r = reconcile_network(net, COLUMN_Y, COLUMN_SIGMA, cov="full")
     mt = measurement_test(r)
     assert mt.z.shape == (1, 9) and np.isfinite(mt.z).all()
+    # Cov(x) = V - Cov(a) at the final linearisation (Kuehn & Davidson 1961)
+    s2 = np.array([COLUMN_SIGMA[k] for k in net.names]) ** 2
+    assert np.diag(r.cov_x[0]) == pytest.approx(s2 - r.var_adjustment[0], rel=1e-6, abs=1e-12)
+    table = closure_table(r)
+    assert set(table.balance) == set(net.constraint_names)
+    # the measured flows miss their volume balance by F1 - F2 - F3 = 128.841 kg/h
+    vol = table[table.balance == "volume[C]"].imbalance.iloc[0]
+    assert vol == pytest.approx(1095.475 - 478.402 - 488.232, abs=1e-9)
 
 
 def test_bad_flowsheets_are_refused_with_names():

@@ -25,6 +25,18 @@ Reconciliation
         The CSTR model: ``pack``, ``residual``, ``jacobian``, ``check_observable``,
         ``reconcile(y_packed, sigma_packed, accumulation=None, ...)``.
 
+Flowsheets
+    ``Network(nodes, streams, species, nu=None, reactions=())``: nodes ``(id, kind)`` with
+    kind in ``node_kinds()`` (reactor, mixer, splitter, separator), streams ``(id, source,
+    target)`` (None = plant boundary); packed variables ``F[<stream>]`` [m^3/s] then
+    ``c[<stream>,<species>]`` [mol/m^3]; volume and species balances at every node, extents
+    only at reactors, splitter outlets at the inlet composition; ``Network.classify(measured)``.
+    ``reconcile_network(network, y, sigma, *, correlation=None, ...) -> NetworkReconciliation``
+        Successive linearisation and projection (Crowe 1986) over the whole flowsheet,
+        batched over steps; ``y`` and ``sigma`` packed (T, n) or ``{label: values}``
+        (``pack_measurements``); ``flow(stream)``, ``conc(stream, species)``,
+        ``extent(node, reaction)``; the gross-error tests below apply unchanged.
+
 Classification
     ``classify_variables(A_y, A_z=None, names=None, unknown_names=None) -> Classification``
         Redundant / non-redundant measured, observable / unobservable unmeasured;
