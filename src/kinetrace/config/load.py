@@ -169,13 +169,27 @@ def _check_correlations(unit: Unit, at: str, problems: ProblemList) -> None:
     from ..reconcile.covariance import correlation_matrix
     from .model import tag_correlations
 
-    known = {t.tag for t in unit.tags}
+    known = {t.tag: t for t in unit.tags}
+    per_role: dict[tuple, int] = {}
+    for t in unit.tags:
+        per_role[(t.role, t.species)] = per_role.get((t.role, t.species), 0) + 1
     ok = True
     for k, c in enumerate(unit.correlations):
         where = f"{at}.correlations[{k}]"
         for t in c.tags:
             if t not in known:
                 problems.add(f"{where}.tags", f"tag {t!r} is not in {at}.tags")
+                ok = False
+                continue
+            tag = known[t]
+            if tag.role not in ("feed_flow", "outlet_flow", "feed_conc", "outlet_conc"):
+                problems.add(f"{where}.tags", f"tag {t!r} has role {tag.role!r}; only flows and concentrations "
+                             "are reconciled, so only their correlations are used")
+                ok = False
+            elif per_role[(tag.role, tag.species)] > 1:
+                problems.add(f"{where}.tags", f"tag {t!r} shares its role ({tag.role}"
+                             f"{'' if tag.species is None else ' ' + tag.species}) with other tags, whose "
+                             "readings are combined; a correlation needs the only tag of its role")
                 ok = False
         if len(set(c.tags)) != len(c.tags):
             problems.add(f"{where}.tags", "a tag is listed twice")
