@@ -126,6 +126,20 @@ def test_batched_steps_equal_single_steps_and_missing_values():
     assert np.isfinite(r.x[3, 0])  # estimated from the balances
 
 
+def test_step_without_any_flow_has_no_flow_scale():
+    # the balances are homogeneous in the flows: compositions alone cannot give flows
+    # (common practice, no source); such a step is returned unreconciled, never as zero flows
+    net = column()
+    y = np.array([[COLUMN_Y[k] for k in net.names]] * 3)
+    s = np.array([COLUMN_SIGMA[k] for k in net.names])
+    y[1, :3] = np.nan
+    r = reconcile_network(net, y, s)
+    assert r.extra["no_flow_scale"].tolist() == [False, True, False]
+    assert np.isnan(r.x[1, :3]).all() and r.dof[1] == 0 and not r.converged[1]
+    assert r.x[1, 3:] == pytest.approx(y[1, 3:]) and r.converged[[0, 2]].all()
+    assert not global_test(r).reject[1]
+
+
 def test_gross_error_tests_closure_and_covariance_over_the_whole_network():
     net = column()
     r = reconcile_network(net, COLUMN_Y, COLUMN_SIGMA, cov="full")

@@ -145,7 +145,10 @@ def reconcile_network(network: Network, y, sigma, *, correlation=None, max_iter=
         Reconciled variables, extents [mol/s] with standard deviations, objective and
         degrees of freedom per step (for :func:`.gross_errors.global_test` and
         :func:`.gross_errors.measurement_test` over the whole flowsheet), closure of every
-        balance, the structural classification in ``extra["classification"]``.
+        balance, the structural classification in ``extra["classification"]``. A step at
+        which no flow is measured or known has no flow scale (the balances are homogeneous
+        in flows and extents): it is returned unreconciled (measurements as given, the rest
+        NaN, dof 0, ``converged`` False) and marked in ``extra["no_flow_scale"]``.
 
     References
     ----------
@@ -193,11 +196,34 @@ def reconcile_network(network: Network, y, sigma, *, correlation=None, max_iter=
         parts.append(_solve_block(network, y[idx], sigma[idx], status[idx], (groups[0], groups[1][idx]),
                                   corr, max_iter, tol, cov == "full"))
     out = {k: np.concatenate([p[k] for p in parts]) for k in parts[0]}
+    # the balances are homogeneous in the flows and extents: without a measured (or known)
+    # flow a step has no flow scale, so nothing there can be reconciled
+    no_scale = ~np.any(status[:, :network.n_streams] != MISSING, axis=1)
+    if no_scale.any():
+        _unreconciled(out, no_scale, y, sigma, status)
     conv, iters = pop_convergence(out, nonconvergence, max_iter)
-    extra = {"classification": cls} | ({} if corr is None else {"correlation": corr})
+    extra = {"classification": cls, "no_flow_scale": no_scale} | ({} if corr is None else {"correlation": corr})
     res = build_result(y, sigma, status, out, names, network.unknown_names, network.constraint_names,
                        source, conv, iters, extra)
     return NetworkReconciliation(**{f: getattr(res, f) for f in res.__dataclass_fields__})
+
+
+def _unreconciled(out, rows, y, sigma, status):
+    """Results of steps that cannot be reconciled: measurements as given (no adjustment), the
+    rest NaN, no degree of freedom, not converged."""
+    meas = status[rows] != MISSING
+    out["x"][rows] = np.where(meas, y[rows], np.nan)
+    out["var_x"][rows] = np.where(meas, sigma[rows] ** 2, np.nan)
+    out["var_adj"][rows] = np.where(meas, 0.0, np.nan)
+    out["redundant"][rows], out["observable_x"][rows] = False, meas
+    out["observable_z"][rows] = False
+    for key in ("z", "var_z", "imbalance", "imbalance_sd", "imbalance_scale"):
+        out[key][rows] = np.nan
+    out["objective"][rows], out["dof"][rows] = 0.0, 0
+    out["converged"][rows], out["iterations"][rows] = False, 0
+    for key in ("cov_x", "cov_z"):
+        if key in out:
+            out[key][rows] = np.nan
 
 
 def _solve_block(network, y, sigma, status, groups, corr, max_iter, tol, full_cov):
