@@ -12,7 +12,13 @@ Prints (never asserts):
    their variances, extents, closure and test statistics for every step: about nine times
    the bytes of the input), a second floor that no implementation returning them can beat.
 
-Run:  PYTHONPATH=src .venv/bin/python benchmarks/bench_reconcile.py [n_steps] [n_sample]
+4. for a flowsheet of its own (feed -> mixer -> CSTR A -> B -> separator -> product, with a
+   recycle from the separator to the mixer; 15 variables: 13 measured, the fresh feed's B known
+   exactly, the reactor inlet flow unmeasured; 1 extent), the ratio
+   of :func:`kinetrace.reconcile.reconcile_network` against SLSQP per step, and the largest
+   difference of the results.
+
+Run:  PYTHONPATH=src .venv/bin/python benchmarks/bench_reconcile.py [n_steps] [n_sample] [chunk] [n_network]
 
 BLAS threads are limited to one (set before numpy is imported) for both kinetrace and the
 baseline: the products here are small, and on a shared machine threaded BLAS spends more
@@ -31,7 +37,7 @@ import time  # noqa: E402
 import numpy as np  # noqa: E402
 from scipy import optimize  # noqa: E402
 
-from kinetrace.reconcile import reconcile_cstr  # noqa: E402
+from kinetrace.reconcile import Network, reconcile_cstr, reconcile_network  # noqa: E402
 
 NU = np.array([[-1.0, 0.0], [1.0, -1.0], [0.0, 1.0], [-1.0, -1.0]])
 C_IN = np.array([1000.0, 0.0, 0.0, 1500.0])
@@ -165,6 +171,81 @@ def main(T=1_000_000, n_sample=300, chunk=100_000):
           f"is {t_write / t_pass:.0f}x the input pass)")
 
 
+def loop_network():
+    """Invented loop: M mixes feed and recycle, R converts A -> B, S splits product and recycle."""
+    return Network([("M", "mixer"), ("R", "reactor"), ("S", "separator")],
+                   [("feed", None, "M"), ("mix", "M", "R"), ("eff", "R", "S"), ("prod", "S", None),
+                    ("rec", "S", "M")], ["A", "B"], nu=[[-1.0], [1.0]])
+
+
+def loop_data(net, T, seed=2):
+    """Steady states of the loop (first-order CSTR, fixed recycle fractions) with 1 % noise;
+    F[mix] unmeasured, c[feed,B] = 0 known exactly."""
+    g = np.random.default_rng(seed)
+    F0 = 1e-3 * (1 + 0.05 * g.standard_normal(T))
+    phi, pa, pb, ktau_v, cA0 = 0.4, 0.8, 0.1, 2e-4 * 5.0, 2000.0
+    Fm = F0 / (1 - phi)
+    kt = ktau_v / Fm
+    nAm = F0 * cA0 / (1 - pa / (1 + kt))
+    nAe = nAm / (1 + kt)
+    nBe = (nAm - nAe) / (1 - pb)
+    F = {"feed": F0, "mix": Fm, "eff": Fm, "prod": (1 - phi) * Fm, "rec": phi * Fm}
+    n = {"feed": (F0 * cA0, 0 * F0), "mix": (nAm, pb * nBe), "eff": (nAe, nBe),
+         "prod": ((1 - pa) * nAe, (1 - pb) * nBe), "rec": (pa * nAe, pb * nBe)}
+    x = np.column_stack([F[s] for s, _, _ in net.streams]
+                        + [n[s][i] / F[s] for s, _, _ in net.streams for i in range(2)])
+    sig = np.abs(x).mean(axis=0) * 0.01 + np.r_[np.zeros(5), np.ones(10)]
+    sig[net.names.index("c[feed,B]")] = 0.0
+    y = x + sig * g.standard_normal(x.shape)
+    y[:, net.names.index("F[mix]")] = np.nan
+    return y, sig
+
+
+def slsqp_network_step(net, yt, sig):
+    """Baseline: one step of the flowsheet by SLSQP (standardised measured variables, analytic
+    constraint Jacobian from the network's linearisation)."""
+    meas = np.isfinite(yt) & (sig > 0)
+    x0 = np.where(np.isfinite(yt), yt, np.nanmean(yt[:5]))
+    sc = np.where(meas, sig, 0.01 * np.abs(x0) + 1e-12)
+    n, X = len(yt), net.extent_matrix
+
+    def cons(u):
+        return net.residual((x0 + sc * u[:n])[None], u[n:][None])[0]
+
+    def cjac(u):
+        J = net.linearise((x0 + sc * u[:n])[:, None])[0][:, :, 0]
+        return np.hstack([J * sc, X])
+
+    sol = optimize.minimize(lambda u: u[:n][meas] @ u[:n][meas], np.r_[np.zeros(n), 1.0],
+                            jac=lambda u: np.r_[2 * u[:n] * meas, 0.0], constraints=[{"type": "eq", "fun": cons,
+                                                                                    "jac": cjac}],
+                            method="SLSQP", options={"ftol": 1e-16, "maxiter": 500})
+    return x0 + sc * sol.x[:n], sol.x[n:]
+
+
+def network_main(T=100_000, n_sample=200):
+    net = loop_network()
+    y, sig = loop_data(net, T)
+    reconcile_network(net, y[:100], sig)  # warm-up
+    t0 = time.perf_counter()
+    r = reconcile_network(net, y, sig)
+    t_ours = time.perf_counter() - t0
+    sample = np.random.default_rng(3).choice(T, n_sample, replace=False)
+    t0 = time.perf_counter()
+    ref = [slsqp_network_step(net, y[t], sig) for t in sample]
+    t_slsqp = (time.perf_counter() - t0) / n_sample * T
+    meas = sig > 0
+    dx = max(np.max(np.abs(r.x[t][meas] - ref[k][0][meas]) / sig[meas]) for k, t in enumerate(sample))
+    dxi = max(np.max(np.abs(r.z[t] - ref[k][1]) / np.abs(ref[k][1])) for k, t in enumerate(sample))
+    print(f"flowsheet (mixer + CSTR + separator + recycle), steps: {T:,}   converged: {int(r.converged.sum()):,}"
+          f"   iterations per step: mean {r.iterations.mean():.2f}, max {r.iterations.max()}")
+    print(f"kinetrace reconcile_network:     {t_ours:9.2f} s  ({t_ours / T * 1e6:.2f} us/step)")
+    print(f"SLSQP per step (x{T // n_sample} from {n_sample} steps): {t_slsqp:9.1f} s  "
+          f"-> ratio {t_slsqp / t_ours:8.0f}x")
+    print(f"  max |difference| on the sample: x {dx:.2e} sd, extents {dxi:.2e} relative")
+
+
 if __name__ == "__main__":
     args = [int(a) for a in sys.argv[1:]]
-    main(*args)
+    main(*args[:3])
+    network_main(*args[3:4])

@@ -163,6 +163,55 @@ def _rate_constant_kind_ok(text: str, overall_order: float) -> str | None:
     return None
 
 
+def _check_correlations(unit: Unit, at: str, problems: ProblemList) -> None:
+    """Correlations name known tags, have one coefficient or a square matrix, and together
+    form a symmetric positive definite correlation matrix (the offending tags named)."""
+    from ..reconcile.covariance import correlation_matrix
+    from .model import tag_correlations
+
+    known = {t.tag: t for t in unit.tags}
+    per_role: dict[tuple, int] = {}
+    for t in unit.tags:
+        per_role[(t.role, t.species)] = per_role.get((t.role, t.species), 0) + 1
+    ok = True
+    for k, c in enumerate(unit.correlations):
+        where = f"{at}.correlations[{k}]"
+        for t in c.tags:
+            if t not in known:
+                problems.add(f"{where}.tags", f"tag {t!r} is not in {at}.tags")
+                ok = False
+                continue
+            tag = known[t]
+            if tag.role not in ("feed_flow", "outlet_flow", "feed_conc", "outlet_conc"):
+                problems.add(f"{where}.tags", f"tag {t!r} has role {tag.role!r}; only flows and concentrations "
+                             "are reconciled, so only their correlations are used")
+                ok = False
+            elif per_role[(tag.role, tag.species)] > 1:
+                problems.add(f"{where}.tags", f"tag {t!r} shares its role ({tag.role}"
+                             f"{'' if tag.species is None else ' ' + tag.species}) with other tags, whose "
+                             "readings are combined; a correlation needs the only tag of its role")
+                ok = False
+        if len(set(c.tags)) != len(c.tags):
+            problems.add(f"{where}.tags", "a tag is listed twice")
+            ok = False
+        if (c.coefficient is None) == (c.matrix is None):
+            problems.add(where, "give either coefficient (two tags) or matrix, not both or neither")
+            ok = False
+        elif c.coefficient is not None and len(c.tags) != 2:
+            problems.add(f"{where}.coefficient", f"a coefficient relates two tags; {len(c.tags)} are listed (use matrix)")
+            ok = False
+        elif c.matrix is not None and (len(c.matrix) != len(c.tags) or any(len(r) != len(c.tags) for r in c.matrix)):
+            problems.add(f"{where}.matrix", f"must be {len(c.tags)} x {len(c.tags)} for the {len(c.tags)} tags")
+            ok = False
+    if ok and unit.correlations:
+        try:
+            pairs = tag_correlations(unit)
+            names = sorted({t for a, b, _ in pairs for t in (a, b)})
+            correlation_matrix(names, {(a, b): r for a, b, r in pairs})
+        except ValueError as exc:  # ReconciliationError is a ValueError
+            problems.add(f"{at}.correlations", str(exc))
+
+
 def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
     names = [s.name for s in unit.species]
     declared = set(names)
@@ -271,6 +320,7 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
         if t.valid_range is not None and not t.valid_range[0] < t.valid_range[1]:
             problems.add(f"{where}.valid_range", f"tag {t.tag!r}: low end must be below high end")
         roles.setdefault((t.role, t.species), t.tag)
+    _check_correlations(unit, at, problems)
     for role in ("feed_flow", "outlet_flow", "temperature"):
         if (role, None) not in roles:
             problems.add(f"{at}.tags", f"no tag has role {role!r}; the design equation needs it")

@@ -59,6 +59,7 @@ class UnitModel:
     catalysed: tuple[str, ...] | None = None  # reactions the catalyst activity multiplies (None: all with a law)
     catalyst_changes: tuple = ()              # configured catalyst changes (UTC timestamps)
     decay_law: str = "auto"                   # decay family of the joint calibration
+    correlations: tuple = ()                  # (tag_a, tag_b, rho) of correlated measurement errors [-]
 
     def index(self, species: str) -> int:
         """Row of ``species`` in ``nu`` and in concentration arrays."""
@@ -98,6 +99,35 @@ def tag_sigma(tag: Tag, kind: str) -> tuple[float, float]:
     return 0.0, parse_quantity(s, kind)
 
 
+def tag_correlations(unit: Unit) -> tuple[tuple[str, str, float], ...]:
+    """Correlated pairs of tags ``(tag_a, tag_b, rho)`` from ``[[units.correlations]]``: a
+    coefficient for two tags, or the upper triangle of a matrix (checked symmetric here,
+    positive definite at load). [-]
+
+    >>> from kinetrace.config.schema import Correlation
+    >>> class U: correlations = [Correlation(tags=["AI-1", "AI-2", "AI-3"],
+    ...                                      matrix=[[1, 0.4, 0], [0.4, 1, 0.2], [0, 0.2, 1]])]
+    >>> tag_correlations(U)
+    (('AI-1', 'AI-2', 0.4), ('AI-2', 'AI-3', 0.2))
+    """
+    out: dict[tuple[str, str], float] = {}
+    for c in unit.correlations:
+        if c.coefficient is not None:
+            items = [((c.tags[0], c.tags[1]), float(c.coefficient))]
+        else:
+            M = np.asarray(c.matrix, dtype=float)
+            if not np.allclose(M, M.T, rtol=0.0, atol=1e-9) or not np.allclose(np.diag(M), 1.0, rtol=0.0, atol=1e-9):
+                raise ValueError(f"correlation matrix of {c.tags} must be symmetric with a unit diagonal")
+            items = [((c.tags[i], c.tags[j]), float(M[i, j])) for i in range(len(c.tags))
+                     for j in range(i + 1, len(c.tags)) if M[i, j] != 0.0]
+        for (a, b), rho in items:
+            key = (a, b) if a < b else (b, a)
+            if key in out and out[key] != rho:
+                raise ValueError(f"the correlation of {a!r} and {b!r} is given twice ({out[key]:g} and {rho:g})")
+            out[key] = rho
+    return tuple((a, b, r) for (a, b), r in out.items())
+
+
 def unit_model(unit: Unit) -> UnitModel:
     """Build the SI :class:`UnitModel` of a validated unit configuration."""
     species = tuple(s.name for s in unit.species)
@@ -135,6 +165,7 @@ def unit_model(unit: Unit) -> UnitModel:
         plan_feed_flow=None if unit.plan is None else unit.plan.feed_flow,
         catalysed=None if unit.activity.catalysed is None else tuple(unit.activity.catalysed),
         catalyst_changes=tuple(unit.activity.catalyst_changes), decay_law=unit.activity.decay_law,
+        correlations=tag_correlations(unit),
     )
 
 

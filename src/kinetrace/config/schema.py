@@ -194,6 +194,18 @@ class Tag(_Strict):
     good_quality: list[str] | None = None     # quality codes counted good for this tag (else source's)
 
 
+class Correlation(_Strict):
+    """Correlated measurement errors of tags (e.g. two flows from one transmitter, the
+    concentrations of one analyzer): ``coefficient`` for two tags, or a full correlation
+    ``matrix`` (symmetric, unit diagonal, positive definite) over two or more tags, in the
+    order of ``tags``. Tags in no entry are uncorrelated.
+    """
+
+    tags: list[str] = Field(min_length=2)
+    coefficient: float | None = None
+    matrix: list[list[float]] | None = None
+
+
 class VolumeSpec(_Strict):
     """Liquid volume: fixed, or from a level tag through a level -> volume table."""
 
@@ -245,6 +257,7 @@ class Unit(_Strict):
     key_reactant: str
     feed: dict[str, Concentration] = Field(default_factory=dict)
     tags: list[Tag]
+    correlations: list[Correlation] = Field(default_factory=list)
     target: Target
     limits: Limits
     activity: Activity = Activity()

@@ -132,6 +132,21 @@ def _matrix(roles: pd.DataFrame, model: UnitModel, prefix: str) -> np.ndarray:
                             for c in cols])
 
 
+def packed_correlations(model: UnitModel) -> dict | None:
+    """Correlations of ``[[units.correlations]]`` as pairs of the CSTR reconciliation's variables
+    (``q_in``, ``q_out``, ``c_in[<sp>]``, ``c_out[<sp>]``); the load checks that each tag is the
+    only one of its role, so the role's value is that tag's reading. [-]"""
+    side = {"feed_flow": "q_in", "outlet_flow": "q_out", "feed_conc": "c_in", "outlet_conc": "c_out"}
+    tags = {t.tag: t for t in model.tags}
+
+    def var(name):
+        t = tags[name]
+        return side[t.role] if t.species is None else f"{side[t.role]}[{t.species}]"
+
+    pairs = {(var(a), var(b)): rho for a, b, rho in model.correlations}
+    return pairs or None
+
+
 def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: int = 5,
                    min_fault_duration: str | None = None, fault_allowance: float = 1.0,
                    fault_threshold: float = 5.0, sigma: str = "data", steady=None) -> ReconcileOutput:
@@ -206,6 +221,7 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
         sigma_q_out=np.nan_to_num(roles["sigma:outlet_flow"].to_numpy(dtype=float), nan=1e-9),
         sigma_c_in=s_cin, sigma_c_out=s_cout, sigma_dvdt=sigma_dvdt)
     inputs = dict(q_in=q_in, q_out=q_out, c_in=c_in, c_out=c_out, dvdt=dvdt, accumulation=acc)
+    correlation = packed_correlations(model)   # [[units.correlations]]; None: independent errors
 
     def solve(rows=slice(None), drop: str | None = None):
         """Reconcile the given rows, optionally with one variable treated as unmeasured."""
@@ -219,7 +235,8 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
                 arr[side][:, model.species.index(sp)] = np.nan
         return reconcile_cstr(arr["q_in"], arr["q_out"], arr["c_in"], arr["c_out"], model.nu,
                               dvdt=arr["dvdt"], accumulation=arr["accumulation"], species=model.species,
-                              reactions=model.reaction_ids, sigma_source=sigma_source, **sig)
+                              reactions=model.reaction_ids, sigma_source=sigma_source,
+                              correlation=correlation, **sig)
 
     res = solve()
     out = pd.DataFrame(index=idx)

@@ -25,6 +25,18 @@ Reconciliation
         The CSTR model: ``pack``, ``residual``, ``jacobian``, ``check_observable``,
         ``reconcile(y_packed, sigma_packed, accumulation=None, ...)``.
 
+Flowsheets
+    ``Network(nodes, streams, species, nu=None, reactions=())``: nodes ``(id, kind)`` with
+    kind in ``node_kinds()`` (reactor, mixer, splitter, separator), streams ``(id, source,
+    target)`` (None = plant boundary); packed variables ``F[<stream>]`` [m^3/s] then
+    ``c[<stream>,<species>]`` [mol/m^3]; volume and species balances at every node, extents
+    only at reactors, splitter outlets at the inlet composition; ``Network.classify(measured)``.
+    ``reconcile_network(network, y, sigma, *, correlation=None, ...) -> NetworkReconciliation``
+        Successive linearisation and projection (Crowe 1986) over the whole flowsheet,
+        batched over steps; ``y`` and ``sigma`` packed (T, n) or ``{label: values}``
+        (``pack_measurements``); ``flow(stream)``, ``conc(stream, species)``,
+        ``extent(node, reaction)``; the gross-error tests below apply unchanged.
+
 Classification
     ``classify_variables(A_y, A_z=None, names=None, unknown_names=None) -> Classification``
         Redundant / non-redundant measured, observable / unobservable unmeasured;
@@ -49,6 +61,15 @@ Gross errors
     ``detect_persistent_bias(result, time=None, *, k=0.5, h=5.0, clip=3.0,
     min_duration=0.0, sensors=None) -> list[BiasEvent]`` (robust tabular CUSUM),
     ``cusum(u, k)``.
+
+Correlated errors
+    ``reconcile_linear``, ``reconcile_cstr`` and ``CSTRBalances.reconcile`` take
+    ``correlation=`` (an (n, n) matrix or ``{(name_a, name_b): rho}``); ``reconcile_linear``
+    also ``covariance=`` (a full (n, n) matrix instead of sigma). ``correlation_matrix(names,
+    pairs)``, ``split_covariance(cov, names) -> (sigma, R)`` and ``check_correlation(R, names)``
+    check symmetry and positive definiteness and name the offending variables. The global
+    and measurement tests then use the full covariance (objective and adjustment variances
+    come from ``V = diag(sigma) R diag(sigma)``).
 
 Uncertainty
     ``estimate_sigma(y, steady, method="pooled_std", min_length=10, names=None)
@@ -81,18 +102,23 @@ Errors
 from ._errors import ConvergenceError, ReconciliationError, UnobservableError
 from .classify import Classification, classify_variables
 from .closure import closure_table
+from .covariance import check_correlation, correlation_matrix, split_covariance
 from .cstr import CSTRBalances, CSTRReconciliation, reconcile_cstr
 from .gross_errors import (GlobalTest, MeasurementTest, SerialElimination, global_test,
                            measurement_test, serial_elimination, sidak_critical_value)
 from .linear import reconcile_linear
+from .network import Network, node_kinds
+from .network_solve import NetworkReconciliation, pack_measurements, reconcile_network
 from .persistence import BiasEvent, cusum, detect_persistent_bias
 from .results import Reconciliation
 from .uncertainty import SigmaEstimate, estimate_sigma, sigma_methods
 
 __all__ = [
-    "BiasEvent", "CSTRBalances", "CSTRReconciliation", "Classification", "ConvergenceError",
+    "BiasEvent", "CSTRBalances", "Network", "NetworkReconciliation", "node_kinds", "pack_measurements",
+    "reconcile_network", "CSTRReconciliation", "Classification", "ConvergenceError",
     "GlobalTest", "MeasurementTest", "Reconciliation", "ReconciliationError", "SerialElimination",
-    "SigmaEstimate", "UnobservableError", "classify_variables", "closure_table", "cusum", "detect_persistent_bias",
+    "SigmaEstimate", "UnobservableError", "check_correlation", "classify_variables", "closure_table",
+    "correlation_matrix", "cusum", "detect_persistent_bias", "split_covariance",
     "estimate_sigma", "global_test", "measurement_test", "reconcile_cstr", "reconcile_linear",
     "serial_elimination", "sidak_critical_value", "sigma_methods",
 ]

@@ -50,7 +50,7 @@ def _projection(azs):
     u, s, vt = np.linalg.svd(azn, full_matrices=True)
     rank = np.sum(s > RANK_TOL * np.maximum(s[:, :1], 1e-300), axis=1) if s.shape[1] else np.zeros(L, int)
     for r in np.unique(rank):
-        idx = slice(None) if L == 1 else np.flatnonzero(rank == r)
+        idx = slice(None) if L == 1 or rank.min() == rank.max() else np.flatnonzero(rank == r)
         ug, sg, vg, cg = u[idx], s[idx], vt[idx], cnorm[idx]
         P = _t(ug[:, :, r:])
         pinv = (_t(vg[:, :r, :]) / sg[:, None, :r]) @ _t(ug[:, :, :r])
@@ -121,10 +121,10 @@ def _mm(X, Y):
         return np.tensordot(X[..., 0], Y, axes=(1, 0))
     if ky == 1:
         return np.einsum("abk,bc->ack", X, Y[..., 0])
-    out = X[:, 0, None, :] * Y[None, 0]
-    for j in range(1, X.shape[1]):
-        out += X[:, j, None, :] * Y[None, j]
-    return out
+    # batched small products over the steps (faster than a loop of whole-array passes), back
+    # to the time-last layout
+    out = np.matmul(np.moveaxis(X, 2, 0), np.moveaxis(Y, 2, 0))
+    return np.ascontiguousarray(np.moveaxis(out, 0, 2))
 
 
 def _mv(X, v):

@@ -13,6 +13,7 @@ import numpy as np
 
 from ._errors import ReconciliationError
 from ._compiled import input_status
+from ._correlated import correlated_kernel
 from ._kernel import _mv, wls_kernel
 
 MEASURED, MISSING, FIXED = 0, 1, 2
@@ -74,12 +75,14 @@ def group_patterns(status):
     return patterns, inverse.reshape(-1)
 
 
-def solve_patterns(y, sigma, status, A, Az, b, full_cov=False, groups=None, minimal=False):
+def solve_patterns(y, sigma, status, A, Az, b, full_cov=False, groups=None, minimal=False, corr=None):
     """Reconcile every step, grouping steps by ``status`` pattern.
 
     ``y, sigma, status`` are (T, n). Constraint arrays have time LAST: ``A`` is (m, n) or
     (m, n, T), ``Az`` (m, nz), (m, nz, T) or None, ``b`` (m,), (m, T) or None.
-    ``groups`` = :func:`group_patterns` of ``status`` if already known. Returns a dict of
+    ``groups`` = :func:`group_patterns` of ``status`` if already known. ``corr`` (n, n): the
+    correlation matrix of the measurement errors (None: uncorrelated); at each pattern the
+    block of the measured variables is used. Returns a dict of
     full-size arrays with time FIRST (see :class:`.results.Reconciliation`).
     """
     T, n = y.shape
@@ -121,8 +124,13 @@ def solve_patterns(y, sigma, status, A, Az, b, full_cov=False, groups=None, mini
             bk = bk - _mv(_cols1(Ak, F), _cols0(yT, F))
         Azk = np.concatenate(_stack_az(Ak[:, U], sel(Az)), axis=1) if U.size else sel(Az)
         var = np.ascontiguousarray(_cols0(sigma[idx].T, M)) ** 2
-        res = wls_kernel(np.ascontiguousarray(_cols0(yT, M)), var, _cols1(Ak, M), Azk, bk,
-                         full_cov and not minimal, minimal)
+        RM = None if corr is None else corr[np.ix_(M, M)]
+        if RM is not None and not np.array_equal(RM, np.eye(M.size)):
+            res = correlated_kernel(np.ascontiguousarray(_cols0(yT, M)), np.sqrt(var), RM, _cols1(Ak, M),
+                                    Azk, bk, full_cov and not minimal, minimal)
+        else:
+            res = wls_kernel(np.ascontiguousarray(_cols0(yT, M)), var, _cols1(Ak, M), Azk, bk,
+                             full_cov and not minimal, minimal)
         nu = U.size
         kk = yk.shape[0]
         x = yk.copy()

@@ -8,12 +8,14 @@ from dataclasses import dataclass
 import numpy as np
 
 from ._compiled import cstr_kernel
-from ._errors import ConvergenceError, ReconciliationError
+from ._errors import ReconciliationError
 from ._kernel import _projection, row_scale
+from ._linearisation import iterate, pop_convergence
 from ._patterns import MISSING, check_inputs, group_patterns, solve_patterns
 from .classify import classify_variables
 from .linear import build_result
 from .results import Reconciliation
+from .covariance import resolve_correlation
 from .uncertainty import resolve_sigma
 
 _NONCONV = ("flag", "raise")
@@ -201,13 +203,15 @@ class CSTRBalances:
 
     def reconcile(self, y, sigma, accumulation=None, *, max_iter=50, tol=1e-10,
                   nonconvergence="flag", cov="diag", chunk_size=4096,
-                  check_observability=True) -> CSTRReconciliation:
-        """Reconcile packed measurements ``y`` (T, n) (see :meth:`pack`); see :func:`reconcile_cstr`."""
+                  check_observability=True, correlation=None) -> CSTRReconciliation:
+        """Reconcile packed measurements ``y`` (T, n) (see :meth:`pack`); see :func:`reconcile_cstr`.
+        ``correlation``: (n, n) over :attr:`names`, or ``{(name_a, name_b): rho}``."""
         if nonconvergence not in _NONCONV:
             raise ValueError(f"unknown nonconvergence {nonconvergence!r}; allowed: {', '.join(_NONCONV)}")
         if cov not in ("diag", "full"):
             raise ValueError(f"unknown cov {cov!r}; allowed: diag, full")
         sigma, source = resolve_sigma(sigma)
+        corr = resolve_correlation(correlation, self.names)
         y, sigma, status = check_inputs(y, sigma, self.names)
         if y.shape[1] != len(self.names):
             raise ReconciliationError(f"packed y has {y.shape[1]} columns; expected {len(self.names)}")
@@ -220,7 +224,7 @@ class CSTRBalances:
         T, n = y.shape
         out = _allocate(T, n, len(self.reactions), len(self.constraint_names), cov == "full")
         solved = np.zeros(T, bool)
-        if cov == "diag":  # the compiled path: steps with nothing missing
+        if cov == "diag" and corr is None:  # the compiled path: uncorrelated, nothing missing
             kern = ~np.any(status == MISSING, axis=1)
             if kern.any():
                 solved = self._compiled(y, sigma, accumulation, kern, max_iter, tol, out)
@@ -231,17 +235,14 @@ class CSTRBalances:
                 idx = rest[start:start + chunk_size]
                 acc = None if accumulation is None else accumulation[idx]
                 grp = (groups[0], groups[1][start:start + chunk_size])
-                part = self._iterate(y[idx], sigma[idx], status[idx], acc, grp, max_iter, tol, cov == "full")
+                part = self._iterate(y[idx], sigma[idx], status[idx], acc, grp, max_iter, tol, cov == "full",
+                                     corr)
                 for k, a in part.items():
                     out[k][idx] = a
-        conv, iters = out.pop("converged"), out.pop("iterations")
-        if nonconvergence == "raise" and not conv.all():
-            bad = np.flatnonzero(~conv)
-            raise ConvergenceError(
-                f"successive linearisation did not converge within {max_iter} iterations at "
-                f"{bad.size} of {T} steps (first: {bad[:5].tolist()})", bad)
+        conv, iters = pop_convergence(out, nonconvergence, max_iter)
+        extra = {"n_species": self.n_species} | ({} if corr is None else {"correlation": corr})
         res = build_result(y, sigma, status, out, self.names, self.unknown_names, self.constraint_names,
-                           source, conv, iters, {"n_species": self.n_species})
+                           source, conv, iters, extra)
         return CSTRReconciliation(**{f: getattr(res, f) for f in res.__dataclass_fields__})
 
     def _constants(self, y, sigma):
@@ -284,7 +285,7 @@ class CSTRBalances:
         solved[idx] = ok
         return solved
 
-    def _linearised(self, v, y, sigma, status, acc, groups, full_cov, minimal):
+    def _linearised(self, v, y, sigma, status, acc, groups, full_cov, minimal, corr=None):
         """Solve the problem linearised at ``v`` for the given steps (the constraints are
         linear in the extents, so the linearisation does not depend on them)."""
         vt = np.ascontiguousarray(v.T)
@@ -296,42 +297,20 @@ class CSTRBalances:
         if acc is not None:
             g = g - acc.T
         b = np.vstack([self._wm @ g, np.zeros((1, v.shape[0]))])
-        return solve_patterns(y, sigma, status, J, self.extent_matrix, b, full_cov, groups, minimal)
+        return solve_patterns(y, sigma, status, J, self.extent_matrix, b, full_cov, groups, minimal, corr)
 
-    def _iterate(self, y, sigma, status, acc, groups, max_iter, tol, full_cov):
-        T, n = y.shape
-        nr = len(self.reactions)
-        v, xi = self._start(y), np.zeros((T, nr))
-        conv = np.zeros(T, bool)
-        iters = np.zeros(T, int)
-        active = np.arange(T)
-        sd_x = sd_z = None
-        for it in range(1, max_iter + 1):
-            sub = (groups[0], groups[1][active])
-            acc_a = None if acc is None else acc[active]
-            va, xa = v[active], xi[active]
-            o = self._linearised(va, y[active], sigma[active], status[active], acc_a, sub,
-                                 False, minimal=it > 1)
-            if it == 1:  # step scales: sigma for measured, first-pass sd for the estimated
-                # tiny negative variances from round-off are zero
-                vx = np.sqrt(np.clip(np.nan_to_num(o["var_x"]), 0.0, None))
-                sd_x = np.where(status == 0, sigma, np.where(vx > 0, vx, np.abs(va) + 1e-300))
-                vz = np.sqrt(np.clip(np.nan_to_num(o["var_z"]), 0.0, None))
-                sd_z = np.where(vz > 0, vz, np.abs(np.nan_to_num(o["z"])) + 1e-300)
-            v_new = np.where(np.isfinite(o["x"]), o["x"], va)
-            xi_new = np.where(np.isfinite(o["z"]), o["z"], xa)
-            with np.errstate(over="ignore"):
-                step = np.max(np.abs(v_new - va) / sd_x[active], axis=1, initial=0.0)
-            step = np.maximum(step, np.max(np.abs(xi_new - xa) / sd_z[active], axis=1, initial=0.0))
-            v[active], xi[active] = v_new, xi_new
-            iters[active] = it
-            done = step < tol
-            conv[active[done]] = True
-            active = active[~done]
-            if active.size == 0:
-                break
+    def _iterate(self, y, sigma, status, acc, groups, max_iter, tol, full_cov, corr=None):
+        T = y.shape[0]
+
+        def solve(active, va, minimal):
+            return self._linearised(va, y[active], sigma[active], status[active],
+                                    None if acc is None else acc[active], (groups[0], groups[1][active]),
+                                    False, minimal=minimal, corr=corr)
+
+        v, xi, conv, iters = iterate(solve, self._start(y), np.zeros((T, len(self.reactions))), sigma,
+                                     status, max_iter, tol)
         # statistics at the final linearisation point (one more closed-form pass)
-        final = self._linearised(v, y, sigma, status, acc, groups, full_cov, minimal=False)
+        final = self._linearised(v, y, sigma, status, acc, groups, full_cov, minimal=False, corr=corr)
         # exact (not linearised) closure at the raw data with the estimated unknowns
         raw = np.where(status == MISSING, v, y)
         final["imbalance"] = self.residual(raw, np.nan_to_num(final["z"]), acc)
@@ -377,7 +356,8 @@ def _allocate(T, n, nz, m, full_cov):
 def reconcile_cstr(q_in, q_out, c_in, c_out, nu, *, sigma_q_in, sigma_q_out, sigma_c_in,
                    sigma_c_out, dvdt=None, sigma_dvdt=0.0, accumulation=None, element_matrix=None,
                    species=None, reactions=None, max_iter=50, tol=1e-10, nonconvergence="flag",
-                   cov="diag", sigma_source="given", chunk_size=4096) -> CSTRReconciliation:
+                   cov="diag", sigma_source="given", chunk_size=4096,
+                   correlation=None) -> CSTRReconciliation:
     """Reconcile the flows and concentrations of a liquid CSTR and estimate the extents.
 
     Minimises the weighted squared adjustments of all measured variables subject to the
@@ -431,6 +411,11 @@ def reconcile_cstr(q_in, q_out, c_in, c_out, nu, *, sigma_q_in, sigma_q_out, sig
         Recorded in the result (e.g. ``SigmaEstimate.source``).
     chunk_size : int
         Steps solved together (bounds memory).
+    correlation : array_like (n, n) or mapping, optional
+        Correlation of the measurement errors over the packed variables ``q_in, q_out,
+        c_in[<species>]..., c_out[<species>]..., dvdt``, as a matrix or as
+        ``{("c_out[A]", "c_out[B]"): rho}`` (e.g. two concentrations from one analyzer);
+        checked symmetric positive definite. Correlated problems take the numpy path. [-]
 
     Returns
     -------
@@ -475,7 +460,8 @@ def reconcile_cstr(q_in, q_out, c_in, c_out, nu, *, sigma_q_in, sigma_q_out, sig
     except ValueError as e:
         raise ReconciliationError(f"a sigma does not match T={T} steps and {ns} species: {e}") from None
     res = model.reconcile(y, sig, accumulation, max_iter=max_iter, tol=tol,
-                          nonconvergence=nonconvergence, cov=cov, chunk_size=chunk_size)
+                          nonconvergence=nonconvergence, cov=cov, chunk_size=chunk_size,
+                          correlation=correlation)
     if sigma_source != "given":
         object.__setattr__(res, "sigma_source", sigma_source)
     return res

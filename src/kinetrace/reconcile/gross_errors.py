@@ -187,7 +187,9 @@ class SerialElimination:
         Estimated bias ``y - x_hat`` of each removed sensor, ``x_hat`` estimated from the
         other measurements; NaN where not removed or not estimable. [units of y]
     bias_sd : ndarray (T, n)
-        Standard deviation of that estimate. [units of y]
+        Standard deviation of that estimate, ``sqrt(sigma^2 + var(x_hat))``; with correlated
+        measurement errors it leaves out the covariance of the removed reading with the
+        others' estimate, so it is then only approximate. [units of y]
     x : ndarray (T, n)
         Reconciled values after removal. [units of y]
     objective, dof : ndarray (T,)

@@ -7,6 +7,7 @@ import numpy as np
 from ._errors import ReconciliationError
 from ._patterns import check_inputs, solve_patterns
 from .results import Reconciliation
+from .covariance import resolve_covariance
 from .uncertainty import resolve_sigma
 
 _COV = ("diag", "full")
@@ -44,11 +45,13 @@ def build_result(y, sigma, status, out, names, unknown_names, constraint_names,
 
 
 def reconcile_linear(y, sigma, A_y, A_z=None, b=None, *, cov="diag", names=None,
-                     unknown_names=None, constraint_names=None) -> Reconciliation:
+                     unknown_names=None, constraint_names=None, correlation=None,
+                     covariance=None) -> Reconciliation:
     """Reconcile measurements against linear constraints ``A_y x + A_z z = b``.
 
-    Minimises ``sum(((y - x) / sigma)**2)`` at every time step subject to the
-    constraints, in closed form. Unmeasured variables ``z`` are eliminated by a
+    Minimises ``(y - x)' V^-1 (y - x)`` at every time step subject to the constraints, in
+    closed form, with ``V = diag(sigma) R diag(sigma)`` (``R`` = identity unless a
+    ``correlation`` or a full ``covariance`` is given). Unmeasured variables ``z`` are eliminated by a
     projection ``P`` with ``P A_z = 0`` and estimated afterwards where observable.
     A NaN in ``y`` makes that variable unmeasured at that step only; a sigma of 0 makes
     it known exactly.
@@ -57,9 +60,9 @@ def reconcile_linear(y, sigma, A_y, A_z=None, b=None, *, cov="diag", names=None,
     ----------
     y : array_like (n,) or (T, n)
         Measurements; NaN = missing at that step. [any consistent units]
-    sigma : array_like (n,) or (T, n), or SigmaEstimate
-        Standard deviations of the measurement errors, > 0, or 0 for exact values.
-        [units of y]
+    sigma : array_like (n,) or (T, n), or SigmaEstimate, or None
+        Standard deviations of the measurement errors, > 0, or 0 for exact values; None
+        when ``covariance`` is given. [units of y]
     A_y : array_like (m, n)
         Constraint coefficients of the measured variables. [constraint unit / unit of y]
     A_z : array_like (m, nz), optional
@@ -70,6 +73,12 @@ def reconcile_linear(y, sigma, A_y, A_z=None, b=None, *, cov="diag", names=None,
         Return only variances (default) or also full covariance matrices.
     names, unknown_names, constraint_names : sequence of str, optional
         Labels used in results and messages.
+    correlation : array_like (n, n), or mapping ``{(name_a, name_b): rho}``, optional
+        Correlation matrix of the measurement errors, or named correlated pairs (the rest
+        uncorrelated); checked symmetric positive definite (errors name the variables). [-]
+    covariance : array_like (n, n), optional
+        Full covariance matrix of the measurement errors, instead of ``sigma`` and
+        ``correlation``. [units of y squared]
 
     Returns
     -------
@@ -94,6 +103,13 @@ def reconcile_linear(y, sigma, A_y, A_z=None, b=None, *, cov="diag", names=None,
     [[9.6667, 6.3333, 3.3333]]
     >>> round(float(r.objective[0]), 4), int(r.dof[0])
     (0.3333, 1)
+
+    The two outlet meters share a transmitter, errors correlated 0.5:
+
+    >>> rc = reconcile_linear([10.0, 6.0, 3.0], 1.0, [[1.0, -1.0, -1.0]], names=["F1", "F2", "F3"],
+    ...                       correlation={("F2", "F3"): 0.5})
+    >>> rc.x.round(4).tolist()
+    [[9.75, 6.375, 3.375]]
     """
     if cov not in _COV:
         raise ValueError(f"unknown cov {cov!r}; allowed: {', '.join(_COV)}")
@@ -103,6 +119,7 @@ def reconcile_linear(y, sigma, A_y, A_z=None, b=None, *, cov="diag", names=None,
         raise ReconciliationError(f"A_y must be 2-D (m, n); got shape {A_y.shape}")
     m, n = A_y.shape
     names = _labels(names, n, "x")
+    sigma, corr = resolve_covariance(sigma, covariance, correlation, names)
     y, sigma, status = check_inputs(y, sigma, names)
     if y.shape[1] != n:
         raise ReconciliationError(f"y has {y.shape[1]} variables but A_y has {n} columns")
@@ -116,6 +133,7 @@ def reconcile_linear(y, sigma, A_y, A_z=None, b=None, *, cov="diag", names=None,
         if b.shape[-1] != m or b.ndim > 2 or (b.ndim == 2 and b.shape[0] != y.shape[0]):
             raise ReconciliationError(f"b must be ({m},) or ({y.shape[0]}, {m}); got {b.shape}")
     b_tl = None if b is None else (b if b.ndim == 1 else b.T)  # kernel layout: time last
-    out = solve_patterns(y, sigma, status, A_y, A_z, b_tl, full_cov=cov == "full")
+    out = solve_patterns(y, sigma, status, A_y, A_z, b_tl, full_cov=cov == "full", corr=corr)
     return build_result(y, sigma, status, out, names, _labels(unknown_names, nz, "z"),
-                        _labels(constraint_names, m, "balance"), source)
+                        _labels(constraint_names, m, "balance"), source,
+                        extra=None if corr is None else {"correlation": corr})
