@@ -74,25 +74,24 @@ def _cfg(case, tmp: Path | None = None):
 
 @pytest.mark.parametrize("case", CASES, ids=[c["id"] for c in CASES])
 def test_broken_input(case, tmp_path):
-    cfg = _cfg(case, tmp_path)
     if "sqlite" in case:       # nothing but the database itself in its folder afterwards (no stray file)
         try:
-            _check(case, cfg)
+            _check(case, tmp_path)
         finally:
             assert sorted(os.listdir(tmp_path)) == [case.get("db_name", "historian.db")]
         return
-    _check(case, cfg)
+    _check(case, tmp_path)
 
 
-def _check(case, cfg):
+def _check(case, tmp_path):
     if case["expect"] == "error":
-        with pytest.raises((IngestError, ConfigError)) as info:
-            read_unit(cfg, "R-220", config_path=DATA / "plant.toml")
+        with pytest.raises((IngestError, ConfigError)) as info:      # a bad tag unit fails at config load
+            read_unit(_cfg(case, tmp_path), "R-220", config_path=DATA / "plant.toml")
         hits = [p for p in info.value.problems if case["where"] in p.where and case["match"] in p.message
                 and case.get("match_also", "") in p.message]
         assert hits, str(info.value)
         return
-    data = read_unit(cfg, "R-220", config_path=DATA / "plant.toml")
+    data = read_unit(_cfg(case, tmp_path), "R-220", config_path=DATA / "plant.toml")
     q = data.quality
     # nothing is lost: every reading read has exactly one fate
     fates = ["good", "bad_timestamp", "ambiguous_time", "nonexistent_time", "bad_quality_code", "bad_value",

@@ -27,6 +27,8 @@ from .timestamps import NAT, place
 MAX_DETAILS = 50
 #: Most readings held back while no stamp has decided whether numeric dates are day-first or month-first.
 MAX_PENDING_ROWS = 2_000_000
+#: Most distinct tag names remembered for the "nearest tag names" hint of a missing tag.
+MAX_SEEN_NAMES = 100_000
 #: ``parse_times`` result of a batch whose stamps all read both day-first and month-first (held back).
 PENDING = "pending"
 
@@ -155,6 +157,7 @@ class Collector:
         self.other_unit = 0
         self.unknown: Counter = Counter()
         self.no_tag = 0
+        self.seen_names: set = set()           # every tag name the source held (for near-match hints)
         self.outside = np.zeros(len(self.tags), dtype=np.int64)
         self.details: list[Detail] = []
         self._ndetail: Counter = Counter()
@@ -248,12 +251,15 @@ class Collector:
             self._replay()
         self.rows_total += n
         if isinstance(tag, str):
+            self.seen_names.add(tag)
             ti = self.tag_index([tag])[0]
             tix = np.full(n, ti, dtype=np.int64)
             names = [tag]
             name_of_row = np.zeros(n, dtype=np.int64)
         else:
             name_of_row, names = _codes(tag)
+            if len(self.seen_names) < MAX_SEEN_NAMES:
+                self.seen_names.update(n for n in names if isinstance(n, str))
             lut = np.r_[self.tag_index(names), -3]     # code -1 (no tag) -> -3
             tix = lut[name_of_row]
         if (tix < 0).any():

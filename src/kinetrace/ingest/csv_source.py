@@ -77,6 +77,18 @@ def _split(line: bytes, delimiter: str, where: str) -> list[str]:
     return next(csv.reader([text], delimiter=delimiter), [])
 
 
+def _delimiter_hint(cols: list[str], source: Source) -> str:
+    """A hint to set ``source.delimiter`` when a one-field header holds another common separator."""
+    if len(cols) != 1:
+        return ""
+    for sep, name in ((";", "semicolons"), ("\t", "tabs"), ("|", "vertical bars"), (",", "commas")):
+        if sep != source.delimiter and sep in cols[0]:
+            shown = "\\t" if sep == "\t" else sep
+            extra = " (and source.decimal = \",\" if numbers are written 19,98)" if sep == ";" else ""
+            return f"; the header is separated by {name}: set source.delimiter = \"{shown}\"{extra}"
+    return ""
+
+
 def detect_layout(header: list[str], source: Source, where: str) -> str:
     """``"long"`` or ``"wide"`` from the header (or the configured layout, checked).
 
@@ -90,7 +102,7 @@ def detect_layout(header: list[str], source: Source, where: str) -> str:
     problems = []
     if c.timestamp not in cols:
         problems.append(Problem(f"{where}:header", f"no time column {c.timestamp!r} (source.columns.timestamp); "
-                                f"header is {cols!r}"))
+                                f"header is {cols!r}{_delimiter_hint(cols, source)}"))
     dups = sorted({h for h in cols if cols.count(h) > 1})
     if dups:
         problems.append(Problem(f"{where}:header", f"column name(s) {dups!r} appear more than once"))

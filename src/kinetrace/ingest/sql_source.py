@@ -271,6 +271,30 @@ def read_sql_source(source: Source, collector: Collector, tags: list[str], since
     return counts
 
 
+#: Most distinct tag names asked of a table for the "nearest tag names" hint.
+TAG_NAMES_LIMIT = 10_000
+
+
+def source_tag_names(source: Source, *, base_dir: Path | None = None, engine: sa.Engine | None = None) -> set[str]:
+    """Distinct tag names of a historian table (at most :data:`TAG_NAMES_LIMIT`), for the hint of a
+    missing tag; an empty set when the table cannot say (a query source, a database error)."""
+    if source.query:
+        return set()
+    url = None if engine is not None else source_url(source, base_dir)[0]
+    eng = engine if engine is not None else sa.create_engine(url)
+    schema, _, table = source.table.rpartition(".")
+    t = sa.table(table, sa.column(source.columns.tag), schema=schema or None)
+    stmt = sa.select(t.c[source.columns.tag]).distinct().limit(TAG_NAMES_LIMIT)
+    try:
+        with eng.connect() as conn:
+            return {r[0] for r in conn.execute(stmt) if isinstance(r[0], str)}
+    except sa.exc.SQLAlchemyError:
+        return set()
+    finally:
+        if engine is None:
+            eng.dispose()
+
+
 def _raw_execute(conn, stmt, params: dict):
     """Execute a compiled statement on the DBAPI connection; a server-side cursor where the driver has one."""
     compiled = stmt.compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
