@@ -24,6 +24,7 @@ KIND_WORDS: dict[str, tuple[str, tuple[str, ...]]] = {
     "temperature": ("a temperature", ("degC", "degF", "K")),
     "volume": ("a volume", ("m3", "L", "gal", "ft3", "bbl")),
     "length": ("a length", ("m", "cm", "mm", "ft", "in")),
+    "mass": ("a mass", ("kg", "lb", "t")),
     "level": ("a fraction of span", ("%",)),
     "time": ("a time", ("s", "min", "h", "d")),
     "molar_energy": ("an energy per amount of substance", ("kJ/mol", "J/mol", "kcal/mol")),
@@ -76,7 +77,7 @@ def dimension_words(dimensionality) -> str:
     from .units import _units
 
     for kind in ("volumetric_flow", "mass_flow", "molar_flow", "concentration", "mass_concentration", "temperature",
-                 "volume", "length", "time", "molar_energy", "molar_mass", "inverse_concentration", "pressure",
+                 "volume", "length", "mass", "time", "molar_energy", "molar_mass", "inverse_concentration", "pressure",
                  "dimensionless"):
         if _units(KIND_WORDS[kind][1][0]).dimensionality == dimensionality:
             return KIND_WORDS[kind][0]

@@ -43,6 +43,7 @@ SI_UNITS: dict[str, str] = {
     "mass_fraction": "dimensionless",
     "temperature": "K",
     "volume": "m^3",
+    "length": "m",
     "level": "dimensionless",
     "time": "s",
     "molar_energy": "J/mol",
@@ -317,3 +318,28 @@ def tag_measure(unit: str, kind: str) -> str:
         if dim == _units(si.get(measure) or SI_UNITS[measure]).dimensionality:
             return measure
     raise UnitError(_wrong_kind(unit, u, allowed))
+
+
+def check_level_unit(unit: str) -> None:
+    """Raise :class:`UnitError` unless a level unit is '%' of span or a length.
+
+    >>> check_level_unit("ft")
+    >>> check_level_unit("m3")
+    Traceback (most recent call last):
+    ...
+    kinetrace.units.UnitError: a level is read in '%' of span or in a length unit (e.g. m, mm, ft), not 'm3' (a volume; for a volume transmitter use role = "volume" and volume_tag)
+    """
+    from .unit_words import dimension_words, unit_hint
+
+    if unit.strip() in ("%", "percent"):
+        return
+    try:
+        check_kind(unit, "length")
+    except UnitError:
+        try:
+            what = dimension_words(_units(tag_unit_text(unit)).dimensionality)
+        except UnitError:
+            what = "an unknown unit" + unit_hint(unit, ["length"])
+        extra = '; for a volume transmitter use role = "volume" and volume_tag' if what == "a volume" else ""
+        raise UnitError(f"a level is read in '%' of span or in a length unit (e.g. m, mm, ft), not {unit!r} "
+                        f"({what}{extra})") from None

@@ -61,6 +61,13 @@ def _cfg(case, tmp: Path | None = None):
         for unit in raw["units"]:
             for t in unit["tags"]:
                 t.update(case.get("tags", {}).get(t["tag"], {}))
+            if unit["id"] == "R-220":      # unit edits of a case: volume spec, extra tags, species' molar masses
+                unit["volume"] = case.get("volume", unit["volume"])
+                unit["tags"] += case.get("add_tags", [])
+                for sp in unit["species"]:
+                    if sp["name"] in case.get("species_without_molar_mass", []):
+                        sp.pop("formula", None)
+                        sp.pop("molar_mass", None)
 
     src = {"kind": "csv", "path": str(DATA / case["file"]), "good_quality": ["OK"], **case.get("source", {})}
     if "sqlite" in case:

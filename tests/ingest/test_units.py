@@ -122,7 +122,7 @@ def test_level_percent_is_a_fraction_and_round_trips():
     ("feed_flow", "blorbs/h", "unknown unit"),
     ("outlet_conc", "%", "ambiguous: write 'wt%'"),
     ("temperature", "kPa", "is a pressure, not a temperature (e.g. degC, degF, K)"),
-    ("level", "m", "a level is read in '%'"),
+    ("level", "kg", "a level is read in '%' of span or in a length unit (e.g. m, mm, ft), not 'kg' (a mass)"),
 ])
 def test_bad_units(role, unit, message):
     with pytest.raises(UnitError, match=re.escape(message)):

@@ -65,7 +65,10 @@ volumetric flows (m3/h, L/min, gpm, bbl/d, ...), mass flows (kg/h, lb/h, t/d) wi
 a ``density`` (tag or unit), molar concentrations (mol/L, kmol/m3, lbmol/ft3),
 mass fractions (wt%, kg/kg) with the species' molar mass and a density, mass
 concentrations (g/L) with the molar mass, temperatures (degC, degF, K), levels in
-% (to a fraction). An unknown or wrong-dimension unit is a ConfigError naming the tag,
+% (to a fraction) or in a length unit (m, mm, ft: to metres; the volume table's levels
+are in the level tag's unit), volumes of a volume transmitter (role ``"volume"``,
+``[units.volume] volume_tag``; m3, L, gal, bbl, ...). A species needs a formula or a
+molar mass only where a conversion uses it (the product; a mass-based concentration tag). An unknown or wrong-dimension unit is a ConfigError naming the tag,
 the kind expected in words ("a volume per time") and the nearest valid spelling
 (``M3/H`` -> ``m3/h``, ``USGPM`` -> ``gpm``; :mod:`kinetrace.unit_words`). A needed tag
 without readings is named with the three nearest tag names the source holds (difflib),

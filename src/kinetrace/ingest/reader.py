@@ -359,6 +359,8 @@ def _refusals(col: Collector, rows: list[dict]) -> list[Problem]:
 def _volume(u: Unit, model: UnitModel, values: pd.DataFrame, valid: pd.DataFrame) -> pd.Series:
     if model.fixed_volume is not None:
         return pd.Series(model.fixed_volume, index=values.index, name="volume")
+    if u.volume.volume_tag is not None:           # a volume transmitter, already in m3
+        return pd.Series(values[u.volume.volume_tag].to_numpy(), index=values.index, name="volume")
     tab = model.level_table
     lv = values[u.volume.level_tag].to_numpy()
     vol = np.interp(lv, tab[:, 0], tab[:, 1])
@@ -374,6 +376,8 @@ def _required(u: Unit, model: UnitModel) -> dict:
                                                   ("outlet_conc", u.key_reactant))}
     if u.volume.level_tag:
         req[("level", None)] = [u.volume.level_tag]
+    if u.volume.volume_tag:
+        req[("volume", None)] = [u.volume.volume_tag]
     return req
 
 
