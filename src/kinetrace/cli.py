@@ -150,7 +150,8 @@ def _details(r) -> str:
     return "\n".join(lines)
 
 
-def _run(config: Path, since, until, out, incremental: bool = False) -> tuple[list, Path]:
+def _run(config: Path, since, until, out, incremental: bool = False, not_checked: list | None = None
+         ) -> tuple[list, Path]:
     from .pipeline import run_check
 
     if sys.stderr.isatty():
@@ -163,9 +164,9 @@ def _run(config: Path, since, until, out, incremental: bool = False) -> tuple[li
                 bar.update(task, total=n, completed=i, description=f"checking {unit_id}")
 
             return run_check(config, since=since, until=until, out_dir=out, progress=progress,
-                             incremental=incremental)
+                             incremental=incremental, not_checked=not_checked)
     log = logging.getLogger("kinetrace")
-    return run_check(config, since=since, until=until, out_dir=out, incremental=incremental,
+    return run_check(config, since=since, until=until, out_dir=out, incremental=incremental, not_checked=not_checked,
                      progress=lambda u, i, n: log.info("checking unit %s (%d of %d)", u, i + 1, n))
 
 
@@ -225,6 +226,12 @@ def _write_report(config: Path, day=None, out: Path | None = None):
         store.close()
 
 
+def _unit_count(config: Path) -> int:
+    from .config import load_config
+
+    return len(load_config(config).units)
+
+
 def _attention(config: Path) -> tuple[list[str], list[str]]:
     """Reasons to alert and the verdict sentences, from the store (latest complete day)."""
     from .report import ReportError, attention_reasons, collect
@@ -255,9 +262,12 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
     Safe to run from cron every hour: each run replaces the results of its window.
     """
     _setup_logging()
+    not_checked: list = []      # (unit id, reason): units whose data could not be read
     try:
         since, until = iso_window(since, until)
-        results, out_dir = _run(config, since, until, out, incremental)
+        results, out_dir = _run(config, since, until, out, incremental, not_checked)
+        if not_checked and not results and len(not_checked) == _unit_count(config):
+            raise KinetraceError("no unit could be checked:\n" + "\n".join(r for _, r in not_checked))
         reasons, verdicts = _attention(config)
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
@@ -266,8 +276,9 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
         raise _internal_error("running the check", config, out) from None
     if results:
         _print_summary(results, out_dir, verdicts)
-    else:
+    elif not not_checked:
         typer.echo("No new data since the last run; results unchanged.")
+    reasons = [f"unit {uid} not checked: its data could not be read: {why}" for uid, why in not_checked] + reasons
     if reasons:
         typer.echo("Needs attention:")
         for r in reasons:

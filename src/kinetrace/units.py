@@ -43,6 +43,7 @@ SI_UNITS: dict[str, str] = {
     "mass_fraction": "dimensionless",
     "temperature": "K",
     "volume": "m^3",
+    "length": "m",
     "level": "dimensionless",
     "time": "s",
     "molar_energy": "J/mol",
@@ -97,12 +98,40 @@ def check_kind(unit: str, kind: str) -> None:
     >>> check_kind("kg/h", "volumetric_flow")
     Traceback (most recent call last):
     ...
-    kinetrace.units.UnitError: unit 'kg/h' is [mass] / [time], not a volumetric_flow ([length] ** 3 / [time])
+    kinetrace.units.UnitError: unit 'kg/h' is a mass per time, not a volume per time (e.g. m3/h, L/min, gpm)
+    >>> check_kind("M3/H", "volumetric_flow")
+    Traceback (most recent call last):
+    ...
+    kinetrace.units.UnitError: unit 'M3/H' is not a volume per time (e.g. m3/h, L/min, gpm); did you mean 'm3/h'? (unit symbols are case-sensitive)
     """
-    u = _units(unit)
+    u = _known(unit, [kind])
     si = _units(SI_UNITS[kind])
     if u.dimensionality != si.dimensionality:
-        raise UnitError(f"unit {unit!r} is {u.dimensionality}, not a {kind} ({si.dimensionality})")
+        raise UnitError(_wrong_kind(unit, u, [kind]))
+
+
+def _known(unit: str, kinds) -> pint.Unit:
+    """The registry's unit for ``unit``; an unknown one raises with the nearest valid spelling."""
+    try:
+        return _units(unit)
+    except UnitError:
+        from .unit_words import kind_words, unit_hint
+
+        raise UnitError(f"unknown unit {unit!r}: expected " + " or ".join(kind_words(k) for k in kinds)
+                        + unit_hint(unit, kinds)) from None
+
+
+def _wrong_kind(unit: str, u: pint.Unit, kinds) -> str:
+    """Message for a unit of the wrong kind: its kind and the expected ones in words, and the nearest
+    valid spelling (a kind in words only where it is a common one, never a dimension dump)."""
+    from .unit_words import dimension_words, kind_words, unit_hint
+
+    words = dimension_words(u.dimensionality)
+    expected = " or ".join(kind_words(k) for k in kinds)
+    hint = unit_hint(unit, kinds)
+    if words.startswith("of ") or hint:    # an unusual dimension: most likely a misspelling
+        return f"unit {unit!r} is not {expected}{hint}"
+    return f"unit {unit!r} is {words}, not {expected}"
 
 
 def to_si(values, unit: str, kind: str) -> np.ndarray | float:
@@ -196,7 +225,7 @@ def parse_quantity(text: str | float | int, kind: str) -> float:
     >>> parse_quantity("3 furlongs/fortnight", "concentration")
     Traceback (most recent call last):
     ...
-    kinetrace.units.UnitError: unit 'furlongs/fortnight' is [length] / [time], not a concentration ([substance] / [length] ** 3)
+    kinetrace.units.UnitError: unit 'furlongs/fortnight' is not an amount of substance per volume (e.g. mol/L, kmol/m3, lbmol/ft3)
     """
     if isinstance(text, (int, float)) and not isinstance(text, bool):
         return float(text)
@@ -224,8 +253,13 @@ def parse_rate_constant(text: str, overall_order: float) -> float:
     q = ureg.Quantity(float(m.group(1)), _units(m.group(2)))
     want = (ureg.mol / ureg.m**3) ** (1.0 - overall_order) / ureg.s
     if q.dimensionality != want.dimensionality:
-        raise UnitError(f"rate constant {text!r} has dimension {q.dimensionality}; a rate law of overall "
-                        f"order {overall_order:g} needs {want.dimensionality}")
+        from .unit_words import dimension_words
+
+        examples = {0: "mol/(L s)", 1: "1/s or 1/min", 2: "L/(mol s) or m3/(kmol h)"}.get(overall_order, "")
+        raise UnitError(f"rate constant {text!r} is {dimension_words(q.dimensionality).removeprefix('of ')}; a rate "
+                        f"law of overall order {overall_order:g} needs "
+                        f"{dimension_words(want.dimensionality).removeprefix('of ')}"
+                        + (f" (e.g. {examples})" if examples else ""))
     return float(q.to(want).magnitude)
 
 
@@ -304,10 +338,35 @@ def tag_measure(unit: str, kind: str) -> str:
     if kind == "concentration" and text.strip() in ("%", "percent"):
         raise UnitError(f"unit {unit!r} on a concentration is ambiguous: write 'wt%' for a mass percent, "
                         "or a molar concentration such as 'mol/L'")
-    dim = _units(text).dimensionality
+    u = _known(unit, allowed) if text == unit.strip() else _units(text)
+    dim = u.dimensionality
     si = {"mass_fraction": "dimensionless", "mass_concentration": "kg/m^3"}
     for measure in allowed:
         if dim == _units(si.get(measure) or SI_UNITS[measure]).dimensionality:
             return measure
-    names = " or ".join(allowed)
-    raise UnitError(f"unit {unit!r} is {dim}, not a {names}")
+    raise UnitError(_wrong_kind(unit, u, allowed))
+
+
+def check_level_unit(unit: str) -> None:
+    """Raise :class:`UnitError` unless a level unit is '%' of span or a length.
+
+    >>> check_level_unit("ft")
+    >>> check_level_unit("m3")
+    Traceback (most recent call last):
+    ...
+    kinetrace.units.UnitError: a level is read in '%' of span or in a length unit (e.g. m, mm, ft), not 'm3' (a volume; for a volume transmitter use role = "volume" and volume_tag)
+    """
+    from .unit_words import dimension_words, unit_hint
+
+    if unit.strip() in ("%", "percent"):
+        return
+    try:
+        check_kind(unit, "length")
+    except UnitError:
+        try:
+            what = dimension_words(_units(tag_unit_text(unit)).dimensionality)
+        except UnitError:
+            what = "an unknown unit" + unit_hint(unit, ["length"])
+        extra = '; for a volume transmitter use role = "volume" and volume_tag' if what == "a volume" else ""
+        raise UnitError(f"a level is read in '%' of span or in a length unit (e.g. m, mm, ft), not {unit!r} "
+                        f"({what}{extra})") from None

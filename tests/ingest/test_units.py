@@ -7,6 +7,8 @@ t/degF -> T/K = (t + 459.67)/1.8. Tolerance 1e-12 relative: the factors are exac
 and both sides are double-precision products of them.
 """
 
+import re
+
 import numpy as np
 import pint
 import pytest
@@ -113,15 +115,17 @@ def test_level_percent_is_a_fraction_and_round_trips():
 
 
 @pytest.mark.parametrize("role, unit, message", [
-    ("feed_flow", "furlong/fortnight", "not a volumetric_flow or mass_flow"),
-    ("feed_flow", "mol/L", "not a volumetric_flow or mass_flow"),
+    ("feed_flow", "furlong/fortnight", "is not a volume per time (e.g. m3/h, L/min, gpm) or a mass per time"),
+    ("feed_flow", "mol/L", "is an amount of substance per volume, not a volume per time"),
+    ("feed_flow", "M3/H", "did you mean 'm3/h'? (unit symbols are case-sensitive)"),
+    ("feed_flow", "USGPM", "unknown unit 'USGPM': expected a volume per time (e.g. m3/h, L/min, gpm) or a mass per time (e.g. kg/h, lb/h); did you mean 'gpm'?"),
     ("feed_flow", "blorbs/h", "unknown unit"),
     ("outlet_conc", "%", "ambiguous: write 'wt%'"),
-    ("temperature", "kPa", "not a temperature"),
-    ("level", "m", "a level is read in '%'"),
+    ("temperature", "kPa", "is a pressure, not a temperature (e.g. degC, degF, K)"),
+    ("level", "kg", "a level is read in '%' of span or in a length unit (e.g. m, mm, ft), not 'kg' (a mass)"),
 ])
 def test_bad_units(role, unit, message):
-    with pytest.raises(UnitError, match=message.replace("(", r"\(").replace("%", "%")):
+    with pytest.raises(UnitError, match=re.escape(message)):
         _si(unit, role=role, species="AA" if role.endswith("conc") else None)
 
 

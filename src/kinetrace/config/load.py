@@ -17,7 +17,7 @@ from pydantic import ValidationError
 
 from ..chemistry import check_element_balance, parse_equation, parse_formula
 from ..errors import ChemistryError, ConfigError, KinetraceError, Problem, ProblemList
-from ..units import SI_UNITS, UnitError, parse_quantity, parse_rate_constant, tag_measure
+from ..units import SI_UNITS, UnitError, check_level_unit, parse_quantity, parse_rate_constant, tag_measure
 from .schema import ROLE_KIND, PlantConfig, Unit
 
 
@@ -224,7 +224,9 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
             except ChemistryError as exc:
                 problems.add(f"{at}.species[{i}].formula", str(exc))
         elif s.molar_mass is None:
-            problems.add(f"{at}.species[{i}]", f"species {s.name!r} needs a formula or a molar_mass")
+            why = _molar_mass_needed(unit, s.name)
+            if why:
+                problems.add(f"{at}.species[{i}]", f"species {s.name!r} needs a formula or a molar_mass: {why}")
     consumed_key = False
     rids = [r.id for r in unit.reactions]
     for d in sorted({x for x in rids if rids.count(x) > 1}):
@@ -289,8 +291,10 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
         where = f"{at}.tags[{k}]"
         kind = ROLE_KIND[t.role]
         if kind == "level":
-            if t.unit.strip() not in ("%", "percent"):
-                problems.add(f"{where}.unit", f"tag {t.tag!r}: a level is read in '%' of span, not {t.unit!r}")
+            try:
+                check_level_unit(t.unit)
+            except UnitError as exc:
+                problems.add(f"{where}.unit", f"tag {t.tag!r}: {exc}")
         else:
             try:
                 measure = tag_measure(t.unit, kind)  # mass-based units allowed, converted at ingest
@@ -330,8 +334,20 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
         problems.add(f"{at}.feed", f"the feed concentration of {unit.key_reactant!r} is neither measured (a feed_conc tag) nor given here")
     # volume
     v = unit.volume
-    if (v.fixed is None) == (v.level_tag is None):
-        problems.add(f"{at}.volume", "give either fixed = '<volume>' or level_tag with table, not both or neither")
+    if [v.fixed is not None, v.level_tag is not None, v.volume_tag is not None].count(True) != 1:
+        problems.add(f"{at}.volume", "give one of fixed = '<volume>', level_tag with table, or volume_tag "
+                     "(a tag of role 'volume')")
+    if v.volume_tag is not None:
+        vt = next((t for t in unit.tags if t.tag == v.volume_tag), None)
+        if vt is None:
+            problems.add(f"{at}.volume.volume_tag", f"tag {v.volume_tag!r} is not in {at}.tags")
+        elif vt.role != "volume":
+            problems.add(f"{at}.volume.volume_tag", f"tag {v.volume_tag!r} has role {vt.role!r}; a volume tag has "
+                         "role 'volume'")
+    lt = next((t for t in unit.tags if t.tag == v.level_tag), None) if v.level_tag else None
+    if lt is not None and lt.unit.strip() not in ("%", "percent") and unit.limits.level is not None:
+        problems.add(f"{at}.limits.level", f"level limits are in % of span; the level tag {lt.tag!r} reads "
+                     f"{lt.unit!r}: leave limits.level out (the volume table gives the volume)")
     if v.level_tag is not None:
         if v.level_tag not in tag_names:
             problems.add(f"{at}.volume.level_tag", f"tag {v.level_tag!r} is not in {at}.tags")
@@ -353,6 +369,21 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
         problems.add(f"{at}.limits.feed_flow", "low limit must be below high limit")
     if unit.activity.fresh_period and not unit.activity.fresh_period[0] < unit.activity.fresh_period[1]:
         problems.add(f"{at}.activity.fresh_period", "start must be before end")
+
+
+def _molar_mass_needed(unit: Unit, species: str) -> str:
+    """Why a conversion needs the molar mass of ``species`` (empty when none does)."""
+    if species == unit.target.species:
+        return "it is the product, whose production is reported in kg/h (and a mass target rate converts through it)"
+    for t in unit.tags:
+        if t.species == species and ROLE_KIND[t.role] == "concentration":
+            try:
+                measure = tag_measure(t.unit, "concentration")
+            except UnitError:
+                continue
+            if measure != "concentration":
+                return f"tag {t.tag!r} is read in {t.unit!r}, a {measure.replace('_', ' ')}"
+    return ""
 
 
 def parse_target_rate(text: str, molar_mass: float) -> float:

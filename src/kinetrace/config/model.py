@@ -128,10 +128,29 @@ def tag_correlations(unit: Unit) -> tuple[tuple[str, str, float], ...]:
     return tuple((a, b, r) for (a, b), r in out.items())
 
 
+def level_table_si(unit: Unit, levels) -> np.ndarray:
+    """Levels of the volume table in the level tag's unit -> what the level tag reads in SI:
+    a fraction of span for '%', else metres. [-] or [m]
+
+    References
+    ----------
+    .. [1] Thompson, A., Taylor, B. N. (2008). NIST Special Publication 811, Appendix B.
+    """
+    from ..units import to_si
+
+    tag = next((t for t in unit.tags if t.tag == unit.volume.level_tag), None)
+    levels = np.asarray(levels, dtype=float)
+    if tag is None or tag.unit.strip() in ("%", "percent"):
+        return levels / 100.0
+    return np.asarray(to_si(levels, tag.unit, "length"), dtype=float)
+
+
 def unit_model(unit: Unit) -> UnitModel:
     """Build the SI :class:`UnitModel` of a validated unit configuration."""
     species = tuple(s.name for s in unit.species)
-    mm = np.array([s.molar_mass if s.molar_mass is not None else molar_mass(s.formula) for s in unit.species])
+    # a species without formula or molar mass is NaN: only conversions that need it ask (checked at load)
+    mm = np.array([s.molar_mass if s.molar_mass is not None else molar_mass(s.formula) if s.formula else np.nan
+                   for s in unit.species])
     reactions = [parse_equation(r.equation, r.id) for r in unit.reactions]
     nu = stoichiometric_matrix(list(species), reactions)
     laws: dict[str, RateLawModel] = {}
@@ -154,7 +173,7 @@ def unit_model(unit: Unit) -> UnitModel:
     table = None
     if unit.volume.table:
         table = np.array(unit.volume.table, dtype=float)
-        table[:, 0] /= 100.0
+        table[:, 0] = level_table_si(unit, table[:, 0])
     return UnitModel(
         id=unit.id, species=species, molar_masses=mm, reaction_ids=tuple(r.id for r in unit.reactions), nu=nu,
         rate_laws=laws, key_reactant=unit.key_reactant, product=unit.target.species,

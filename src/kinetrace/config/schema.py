@@ -153,7 +153,7 @@ class ReactionSpec(_Strict):
     rate_law: RateLaw | None = None
 
 
-Role = Literal["feed_flow", "outlet_flow", "feed_conc", "outlet_conc", "temperature", "level"]
+Role = Literal["feed_flow", "outlet_flow", "feed_conc", "outlet_conc", "temperature", "level", "volume"]
 Sampling = Literal["continuous", "analyzer", "lab"]
 
 #: Physical kind of the SI value each tag role carries.
@@ -164,6 +164,7 @@ ROLE_KIND: dict[str, str] = {
     "outlet_conc": "concentration",
     "temperature": "temperature",
     "level": "level",
+    "volume": "volume",          # a volume transmitter (any volume unit: m3, L, gal, bbl, ...)
 }
 
 
@@ -207,11 +208,15 @@ class Correlation(_Strict):
 
 
 class VolumeSpec(_Strict):
-    """Liquid volume: fixed, or from a level tag through a level -> volume table."""
+    """Liquid volume: fixed, from a level tag through a level -> volume table, or from a volume tag.
+
+    The table's levels are in the level tag's unit: % of span, or a length unit (m, mm, ft).
+    """
 
     fixed: Volume | None = None
     level_tag: str | None = None
-    table: list[tuple[float, float]] | None = None  # (level %, volume m3)
+    table: list[tuple[float, float]] | None = None  # (level in the level tag's unit, volume m3)
+    volume_tag: str | None = None                    # a tag of role "volume" (any volume unit)
 
 
 class Target(_Strict):

@@ -23,6 +23,10 @@ or ``"wide"`` (time column + one column per tag; an empty cell is no reading);
 ``decimal`` (``"."`` or ``","``). Header variations are declared: ``skip_rows``
 (lines before the header), ``description_rows`` (lines after it), ``units_row``
 (a line of units, checked against the tag units; a disagreement is an error).
+Bounded: a line longer than ``max_line_bytes`` (default 4 MiB) is a counted bad line
+(``long_lines``, also ``malformed_lines``), skipped in bounded pieces; a gzip file may
+expand to at most ``max_decompressed_bytes`` (default 64 GiB); named pipes, devices
+(``/dev/zero``) and sockets are refused by name, never opened (:mod:`.files`).
 
 ``kind = "sqlite"`` (``path``) or ``kind = "sql"`` (URL from the environment variable
 named by ``url_env``, through SQLAlchemy 2; never logged): a long ``table`` with
@@ -31,7 +35,9 @@ parameters ``:since`` and ``:until``. ``time_column = "text"`` (stamps as text, 
 spelling) or ``"native"`` (a timestamp type; without a time zone it is wall time of
 ``source.timezone``, else UTC). Reads are streamed in ``chunk_rows`` rows; PostgreSQL
 (psycopg 3) via ``COPY ... TO STDOUT``, SQLite by rowid ranges (or a streamed SELECT
-for a view or a table without rowid). The window is pushed into the WHERE clause
+for a view, a WITHOUT ROWID or virtual table, or a table with a column called ``rowid``);
+a SQLite path may hold ``#``, ``?``, ``%`` or spaces (it is opened as a percent-encoded,
+read-only URI, so no file is ever created). The window is pushed into the WHERE clause
 widened by a day on each side (ISO texts compared by their date part, texts of another
 shape always read), and applied exactly after parsing, so no reading of the window is
 lost whatever the stamps' spelling; stamps of a non-ISO ``time_format`` are read whole.
@@ -59,12 +65,21 @@ volumetric flows (m3/h, L/min, gpm, bbl/d, ...), mass flows (kg/h, lb/h, t/d) wi
 a ``density`` (tag or unit), molar concentrations (mol/L, kmol/m3, lbmol/ft3),
 mass fractions (wt%, kg/kg) with the species' molar mass and a density, mass
 concentrations (g/L) with the molar mass, temperatures (degC, degF, K), levels in
-% (to a fraction). An unknown or wrong-dimension unit is a ConfigError naming the tag.
+% (to a fraction) or in a length unit (m, mm, ft: to metres; the volume table's levels
+are in the level tag's unit), volumes of a volume transmitter (role ``"volume"``,
+``[units.volume] volume_tag``; m3, L, gal, bbl, ...). A species needs a formula or a
+molar mass only where a conversion uses it (the product; a mass-based concentration tag). An unknown or wrong-dimension unit is a ConfigError naming the tag,
+the kind expected in words ("a volume per time") and the nearest valid spelling
+(``M3/H`` -> ``m3/h``, ``USGPM`` -> ``gpm``; :mod:`kinetrace.unit_words`). A needed tag
+without readings is named with the three nearest tag names the source holds (difflib),
+and a one-field header holding ``;`` gets the ``source.delimiter`` hint.
 
 Screening, per tag (first rule that applies decides the reading's fate)
 -----------------------------------------------------------------------
 time unreadable / ambiguous / non-existent; quality code not in ``good_quality``
-(source, or the tag's own list); value empty or not a number; duplicate time
+(source, or the tag's own list; compared exactly, or trimmed and case-folded with
+``source.quality_match = "folded"``; under exact matching, codes that differ from a good
+one only by case or spaces are named once in a note); value empty or not a number; duplicate time
 (same value: ``duplicate``; different: ``conflicting_duplicate``); outside
 ``valid_range``; ``spike`` (a one-reading excursion faster than ``max_rate`` [tag
 unit/min]); ``frozen`` (identical values for ``frozen_after``, default 4 h from

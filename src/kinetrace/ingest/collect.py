@@ -27,6 +27,8 @@ from .timestamps import NAT, place
 MAX_DETAILS = 50
 #: Most readings held back while no stamp has decided whether numeric dates are day-first or month-first.
 MAX_PENDING_ROWS = 2_000_000
+#: Most distinct tag names remembered for the "nearest tag names" hint of a missing tag.
+MAX_SEEN_NAMES = 100_000
 #: ``parse_times`` result of a batch whose stamps all read both day-first and month-first (held back).
 PENDING = "pending"
 
@@ -95,6 +97,15 @@ def to_float(values: pa.Array, decimal: str = ".") -> tuple[np.ndarray, np.ndarr
     return num, present & np.isnan(num)
 
 
+def fold_code(code) -> str | None:
+    """A quality code trimmed and case-folded (``source.quality_match = "folded"``).
+
+    >>> fold_code(" Ok "), fold_code("GOOD"), fold_code(None)
+    ('ok', 'good', None)
+    """
+    return code.strip().casefold() if isinstance(code, str) else None
+
+
 def subset_parsed(parsed, rows: np.ndarray):
     """The result of :meth:`Collector.parse_times` for a subset of its rows."""
     if parsed is PENDING:
@@ -138,11 +149,15 @@ class Collector:
         self.all_tags = set(all_tags)
         self.buffers = [TagBuffer() for _ in self.tags]
         self.good = [set(t.good_quality if t.good_quality is not None else source.good_quality) for t in self.tags]
+        self.folded = source.quality_match == "folded"
+        self._good_folded = [{fold_code(q) for q in g} for g in self.good]
+        self.near_codes: Counter = Counter()   # exact matching: bad codes that differ from a good one by case/spaces
         self.lo, self.hi = window
         self.rows_total = 0
         self.other_unit = 0
         self.unknown: Counter = Counter()
         self.no_tag = 0
+        self.seen_names: set = set()           # every tag name the source held (for near-match hints)
         self.outside = np.zeros(len(self.tags), dtype=np.int64)
         self.details: list[Detail] = []
         self._ndetail: Counter = Counter()
@@ -236,12 +251,15 @@ class Collector:
             self._replay()
         self.rows_total += n
         if isinstance(tag, str):
+            self.seen_names.add(tag)
             ti = self.tag_index([tag])[0]
             tix = np.full(n, ti, dtype=np.int64)
             names = [tag]
             name_of_row = np.zeros(n, dtype=np.int64)
         else:
             name_of_row, names = _codes(tag)
+            if len(self.seen_names) < MAX_SEEN_NAMES:
+                self.seen_names.update(n for n in names if isinstance(n, str))
             lut = np.r_[self.tag_index(names), -3]     # code -1 (no tag) -> -3
             tix = lut[name_of_row]
         if (tix < 0).any():
@@ -281,7 +299,13 @@ class Collector:
         if quality is not None:
             qcodes, qnames = _codes(quality)
             # good[tag, code]: is this code good for this tag (last column: no code at all)
+            keys = [fold_code(q) for q in qnames]
             good = np.array([[q in g for q in qnames] + [False] for g in self.good], dtype=bool)
+            near = np.array([[k in fg for k in keys] + [False] for fg in self._good_folded], dtype=bool) & ~good
+            if self.folded:
+                good |= near
+            elif near.any():
+                self._count_near(near[tix, qcodes] & ((fate == GOOD) | (fate == AMBIGUOUS_TIME)), qcodes, qnames)
             bad_q = ~good[tix, qcodes]
             fate[((fate == GOOD) | (fate == AMBIGUOUS_TIME)) & bad_q] = BAD_QUALITY
         bad_v = ((fate == GOOD) | (fate == AMBIGUOUS_TIME)) & ~np.isfinite(vals)
@@ -322,6 +346,24 @@ class Collector:
             buf.fate.append(f)
             buf.n += b - a
 
+    def _count_near(self, rows: np.ndarray, qcodes: np.ndarray, qnames: list) -> None:
+        if rows.any():
+            for code, n in zip(*np.unique(qcodes[rows], return_counts=True)):
+                self.near_codes[qnames[code]] += int(n)
+
+    def _near_code_note(self) -> None:
+        """Say once that bad codes differ from the good ones only by case or spaces (exact matching)."""
+        if not self.near_codes:
+            return
+        codes = ", ".join(f"{c!r} ({n})" for c, n in self.near_codes.most_common(5))
+        more = f" and {len(self.near_codes) - 5} more" if len(self.near_codes) > 5 else ""
+        good = sorted({q for g in self.good for q in g})
+        self.add_note("quality codes", (
+            f"code(s) {codes}{more} differ from the good code(s) {good!r} only by case or spaces: "
+            f"{sum(self.near_codes.values())} reading(s) counted as bad quality; set source.quality_match = "
+            "\"folded\" to compare codes trimmed and case-folded"))
+        self.near_codes = Counter()
+
     def _hold(self, tag, ts, value, quality, locate, decimal) -> None:
         """Hold a batch back until a later stamp decides the numeric-date order (file order is kept)."""
         self._pending.append((tag, ts, value, quality, locate, decimal))
@@ -357,8 +399,10 @@ class Collector:
             f"cannot be told apart: {'; '.join(samples)}; set source.time_format = {order_hint(first)}"))])
 
     def finish(self, source_name: str = "source") -> None:
-        """End of the source: refuse what is still held back (see :meth:`refuse_undecided`)."""
+        """End of the source: refuse what is still held back (see :meth:`refuse_undecided`); note codes
+        that only case or spaces kept from counting good."""
         self.refuse_undecided(source_name)
+        self._near_code_note()
 
     def _bad_time_text(self, uniq, code, reasons, fate=BAD_TIME) -> str:
         text = uniq[int(code)] if (uniq is not None and code >= 0) else None

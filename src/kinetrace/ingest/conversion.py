@@ -16,7 +16,7 @@ import numpy as np
 
 from ..config.schema import ROLE_KIND, Tag, Unit
 from ..errors import ConfigError, ProblemList
-from ..units import SI_UNITS, UnitError, _units, tag_measure, tag_unit_text, ureg
+from ..units import SI_UNITS, UnitError, _units, check_level_unit, tag_measure, tag_unit_text, ureg
 
 
 @dataclass(frozen=True)
@@ -82,9 +82,11 @@ def tag_scale(tag: Tag, *, density: float | None = None, molar_mass: float | Non
     """
     kind = ROLE_KIND[tag.role]
     if kind == "level":
-        if tag.unit.strip() not in ("%", "percent"):
-            raise UnitError(f"a level is read in '%' of span, not {tag.unit!r}")
-        return TagScale(tag.tag, "level", "level", 0.01, 0.0)
+        if tag.unit.strip() in ("%", "percent"):
+            return TagScale(tag.tag, "level", "level", 0.01, 0.0)
+        check_level_unit(tag.unit)
+        a, b = _linear(tag_unit_text(tag.unit), SI_UNITS["length"])
+        return TagScale(tag.tag, "level", "length", a, b)
     measure = tag_measure(tag.unit, kind)
     text = tag_unit_text(tag.unit)
     if measure == kind:
@@ -98,12 +100,14 @@ def tag_scale(tag: Tag, *, density: float | None = None, molar_mass: float | Non
     elif measure == "mass_fraction":
         if not density or not molar_mass:
             raise UnitError(f"unit {tag.unit!r} is a mass fraction; a molar concentration needs the liquid density "
-                            "(tag or unit 'density') and the species' molar mass")
+                            f"(tag or unit 'density') and the molar mass of species {tag.species!r} (formula or "
+                            "molar_mass)")
         a, b = _linear(text, "dimensionless")
         a, b = a * density / molar_mass, b * density / molar_mass
     else:  # mass_concentration
         if not molar_mass:
-            raise UnitError(f"unit {tag.unit!r} is a mass concentration; it needs the species' molar mass")
+            raise UnitError(f"unit {tag.unit!r} is a mass concentration; it needs the molar mass of species "
+                            f"{tag.species!r} (formula or molar_mass)")
         a, b = _linear(text, "kg/m^3")
         a, b = a / molar_mass, b / molar_mass
     return TagScale(tag.tag, kind, measure, a, b)
@@ -133,10 +137,12 @@ def unit_scales(unit: Unit, molar_masses: dict[str, float], *, where: str = "uni
     scales: dict[str, TagScale] = {}
     for k, t in enumerate(unit.tags):
         try:
+            mm = molar_masses.get(t.species) if t.species else None
             scales[t.tag] = tag_scale(t, density=t.density or unit.density,
-                                      molar_mass=molar_masses.get(t.species) if t.species else None)
+                                      molar_mass=None if mm is None or np.isnan(mm) else mm)
         except UnitError as exc:
             problems.add(f"{where}.tags[{k}].unit", f"tag {t.tag!r}: {exc}")
     if problems:
         raise ConfigError(source, problems)
     return scales
+

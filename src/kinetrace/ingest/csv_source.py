@@ -36,10 +36,14 @@ from ..errors import IngestError, Problem
 from ..units import UnitError, tag_unit_text
 from .collect import Collector, subset_parsed
 from .conversion import _linear
+from .files import LONG_LINE, BoundedReader, complete_block, open_regular, read_line, replace_long_lines
 
 #: Bytes read per block (whole lines are completed after it). On the ingest benchmark, 8 MB blocks were
 #: about 10 % faster than 4 MB ones for about 18 MB more peak memory; 16 MB were no faster and took 70 MB more.
 BLOCK_BYTES = 8 << 20
+#: Line counts of a CSV file (``long_lines`` are also ``malformed_lines``).
+_COUNTS = ("lines", "header_lines", "blank_lines", "malformed_lines", "long_lines", "empty_cells")
+_LONG_TEXT = LONG_LINE.decode()
 #: Parsed blocks live briefly; the system allocator returns their memory at once.
 _POOL = pa.system_memory_pool()
 
@@ -47,7 +51,8 @@ _POOL = pa.system_memory_pool()
 def list_files(path: Path, pattern: str) -> list[Path]:
     """The files a CSV source reads: the file itself, or a folder's files matching ``pattern``, sorted by name."""
     if path.is_dir():
-        files = sorted(p for p in path.glob(pattern) if p.is_file())
+        # pipes and devices are listed too, to be refused by name when read (see .files)
+        files = sorted(p for p in path.glob(pattern) if not p.is_dir())
         if not files:
             raise IngestError(str(path), [Problem("(folder)", f"no files match {pattern!r} (source.file_pattern)")])
         return files
@@ -56,11 +61,11 @@ def list_files(path: Path, pattern: str) -> list[Path]:
     return [path]
 
 
-def _open(path: Path):
-    with open(path, "rb") as f:
+def _open(path: Path, source: Source):
+    with open_regular(path) as f:
         magic = f.read(2)
     if magic == b"\x1f\x8b":
-        return gzip.open(path, "rb")
+        return BoundedReader(gzip.open(path, "rb"), source.max_decompressed_bytes, str(path))
     return open(path, "rb")
 
 
@@ -70,6 +75,18 @@ def _split(line: bytes, delimiter: str, where: str) -> list[str]:
     except UnicodeDecodeError:
         raise IngestError(where, [Problem(where, "line is not UTF-8 text")]) from None
     return next(csv.reader([text], delimiter=delimiter), [])
+
+
+def _delimiter_hint(cols: list[str], source: Source) -> str:
+    """A hint to set ``source.delimiter`` when a one-field header holds another common separator."""
+    if len(cols) != 1:
+        return ""
+    for sep, name in ((";", "semicolons"), ("\t", "tabs"), ("|", "vertical bars"), (",", "commas")):
+        if sep != source.delimiter and sep in cols[0]:
+            shown = "\\t" if sep == "\t" else sep
+            extra = " (and source.decimal = \",\" if numbers are written 19,98)" if sep == ";" else ""
+            return f"; the header is separated by {name}: set source.delimiter = \"{shown}\"{extra}"
+    return ""
 
 
 def detect_layout(header: list[str], source: Source, where: str) -> str:
@@ -85,7 +102,7 @@ def detect_layout(header: list[str], source: Source, where: str) -> str:
     problems = []
     if c.timestamp not in cols:
         problems.append(Problem(f"{where}:header", f"no time column {c.timestamp!r} (source.columns.timestamp); "
-                                f"header is {cols!r}"))
+                                f"header is {cols!r}{_delimiter_hint(cols, source)}"))
     dups = sorted({h for h in cols if cols.count(h) > 1})
     if dups:
         problems.append(Problem(f"{where}:header", f"column name(s) {dups!r} appear more than once"))
@@ -221,28 +238,33 @@ def read_csv_file(path: Path, source: Source, collector: Collector, tags: dict[s
         disagrees with the config.
     """
     name = str(path)
-    counts = {"lines": 0, "header_lines": 0, "blank_lines": 0, "malformed_lines": 0, "empty_cells": 0}
+    counts = dict.fromkeys(_COUNTS, 0)
     try:
-        with _open(path) as f:
+        with _open(path, source) as f:
             return _read_open(f, name, source, collector, tags, block_bytes, counts)
     except (OSError, EOFError, gzip.BadGzipFile) as exc:
         raise IngestError(name, [Problem("(file)", f"cannot read: {type(exc).__name__}: {exc}")]) from None
 
 
 def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
+    limit = source.max_line_bytes
     for _ in range(source.skip_rows):
-        f.readline()
-    header_line = f.readline()
+        read_line(f, limit)
+    header_line, too_long = read_line(f, limit)
+    if too_long:
+        raise IngestError(name, [Problem(f"{name}:{source.skip_rows + 1}", (
+            f"header line is longer than source.max_line_bytes ({limit} bytes): not a CSV export with a "
+            "header line (check source.path, source.skip_rows), or raise the limit"))])
     if not header_line.strip():
         raise IngestError(name, [Problem(f"{name}:{source.skip_rows + 1}", "file is empty (no header line)")])
     header = [h.strip() for h in _split(header_line, source.delimiter, name)]
     layout = detect_layout(header, source, name)
     line_no = source.skip_rows + 1
     for _ in range(source.description_rows):
-        f.readline()
+        read_line(f, limit)
         line_no += 1
     if source.units_row:
-        units = _split(f.readline(), source.delimiter, name)
+        units = _split(read_line(f, limit)[0], source.delimiter, name)
         line_no += 1
         _check_units(header, units, tags, name)
     counts["header_lines"] = line_no
@@ -253,13 +275,18 @@ def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
         buf = f.read(block_bytes)
         if not buf:
             break
-        if not buf.endswith(b"\n"):
-            buf += f.readline()
+        # whole lines, none longer than the limit (a longer one becomes a one-field bad line)
+        buf = replace_long_lines(complete_block(f, buf, limit), limit)
         table, bad_rows, n_lines = parse_block(buf, header, source, layout, name, next_line)
         invalid = [k for k, _, _, _ in bad_rows]
         for k, text, actual, expected in bad_rows:
             if text.strip() == "":
                 counts["blank_lines"] += 1
+            elif text.strip() == _LONG_TEXT:
+                counts["malformed_lines"] += 1
+                counts["long_lines"] += 1
+                collector.add_note(f"{name}:{next_line + k}", f"line is longer than source.max_line_bytes ({limit} "
+                                   "bytes); counted, not used")
             else:
                 counts["malformed_lines"] += 1
                 collector.add_note(f"{name}:{next_line + k}", f"malformed line: {actual} fields, expected {expected}: "
@@ -298,7 +325,7 @@ def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
 
 def read_csv_source(path: Path, source: Source, collector: Collector, tags: dict[str, Tag]) -> dict:
     """Read a CSV source (one file, or a folder of files) into ``collector``; returns summed line counts."""
-    total = {"files": 0, "lines": 0, "header_lines": 0, "blank_lines": 0, "malformed_lines": 0, "empty_cells": 0}
+    total = {"files": 0, **dict.fromkeys(_COUNTS, 0)}
     problems: list[Problem] = []
     for p in list_files(path, source.file_pattern):
         try:

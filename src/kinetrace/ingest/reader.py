@@ -30,7 +30,7 @@ from .conversion import unit_scales
 from .csv_source import read_csv_source
 from .fates import (AMBIGUOUS_TIME, BAD_QUALITY, BAD_TIME, NONEXISTENT_TIME, BAD_VALUE, CONFLICT, FATE_NAMES, FROZEN, GOOD, N_FATES,
                     OUT_OF_RANGE, SPIKE)
-from .sql_source import read_sql_source
+from .sql_source import read_sql_source, source_tag_names
 from .timestamps import NAT, place_repeated_hour
 from .unitdata import UnitData, check_unit_data
 
@@ -155,6 +155,9 @@ def read_unit(cfg: PlantConfig, unit: UnitModel | Unit | str, *, config_path, si
     else:
         report = read_sql_source(src, col, [t.tag for t in u.tags], lo, hi, base_dir=base, engine=engine)
     col.finish(_source_name(cfg))
+    if src.kind != "csv" and not src.query and _missing_required(u, model, col):
+        # the tag list was pushed down: ask the table which names it holds, for the hint
+        col.seen_names |= source_tag_names(src, base_dir=base, engine=engine)
     _release_memory()
     return assemble(cfg, u, model, scales, col, report, grid=grid, since_ns=since_ns, until_ns=until_ns,
                     complete_only=complete_only)
@@ -216,11 +219,10 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     last = until_ns - 1 if until_ns != NAT else (max(z for _, z in spans) if spans else NAT)
     counts = [b.n for b in col.buffers]
     problems = []
-    for key, tags in _required(u, model).items():
-        if all(counts[names.index(t)] == 0 for t in tags):
-            problems.append(Problem(", ".join(tags), f"no readings in the source for {_window_text(since_ns, until_ns)}; "
-                                    f"unit {u.id} needs a {key[0]} tag{' for ' + key[1] if key[1] else ''} "
-                                    "(check the tag name against the historian)"))
+    for key, tags in _missing_required(u, model, col).items():
+        problems.append(Problem(", ".join(tags), f"no readings in the source for {_window_text(since_ns, until_ns)}; "
+                                f"unit {u.id} needs a {key[0]} tag{' for ' + key[1] if key[1] else ''} "
+                                f"(check the tag name against the historian{_nearest_tags(tags, col)})"))
     if first == NAT and not problems:
         problems.append(Problem(f"unit {u.id}", f"no readings with a usable time stamp for "
                                 f"{_window_text(since_ns, until_ns)}{_rejected_stamps(col)}"))
@@ -357,6 +359,8 @@ def _refusals(col: Collector, rows: list[dict]) -> list[Problem]:
 def _volume(u: Unit, model: UnitModel, values: pd.DataFrame, valid: pd.DataFrame) -> pd.Series:
     if model.fixed_volume is not None:
         return pd.Series(model.fixed_volume, index=values.index, name="volume")
+    if u.volume.volume_tag is not None:           # a volume transmitter, already in m3
+        return pd.Series(values[u.volume.volume_tag].to_numpy(), index=values.index, name="volume")
     tab = model.level_table
     lv = values[u.volume.level_tag].to_numpy()
     vol = np.interp(lv, tab[:, 0], tab[:, 1])
@@ -372,7 +376,26 @@ def _required(u: Unit, model: UnitModel) -> dict:
                                                   ("outlet_conc", u.key_reactant))}
     if u.volume.level_tag:
         req[("level", None)] = [u.volume.level_tag]
+    if u.volume.volume_tag:
+        req[("volume", None)] = [u.volume.volume_tag]
     return req
+
+
+def _missing_required(u: Unit, model: UnitModel, col: Collector) -> dict:
+    """The needed roles (role, species) none of whose tags has a reading, with their tags."""
+    counts = {name: b.n for name, b in zip(col.names, col.buffers)}
+    return {k: tags for k, tags in _required(u, model).items() if all(counts[t] == 0 for t in tags)}
+
+
+def _nearest_tags(tags: list[str], col: Collector, n: int = 3) -> str:
+    """``"; nearest tag names in the source: 'A', 'B', 'C'"`` (difflib, Ratcliff/Obershelp similarity), or ""."""
+    import difflib
+
+    pool = sorted(col.seen_names - col.all_tags)     # a tag of some unit's config is not the one renamed
+    near = []
+    for t in tags:
+        near += [m for m in difflib.get_close_matches(t, pool, n=n, cutoff=0.0) if m not in near]
+    return f"; nearest tag names in the source: {', '.join(map(repr, near[:n]))}" if near else ""
 
 
 def _rejected_stamps(col: Collector, n: int = 3) -> str:

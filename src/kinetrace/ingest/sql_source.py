@@ -29,6 +29,7 @@ from __future__ import annotations
 import io
 import os
 import sqlite3
+import urllib.parse
 from datetime import datetime, timedelta, timezone
 from pathlib import Path
 
@@ -41,6 +42,7 @@ import sqlalchemy as sa
 from ..config.schema import Source
 from ..errors import ConfigError, IngestError, Problem
 from .collect import Collector
+from .files import refuse_special_file
 from .sqlite_arrow import RangeReader
 from .timestamps import NAT
 
@@ -69,7 +71,11 @@ def source_url(source: Source, base_dir: Path | None = None) -> tuple[sa.URL, st
             p = base_dir / p
         if not p.exists():
             raise IngestError(str(p), [Problem("(file)", "SQLite file not found (source.path is relative to the config file)")])
-        return sa.make_url(f"sqlite:///file:{p.resolve()}?mode=ro&uri=true"), str(p)
+        refuse_special_file(p)
+        # a URI filename, percent-encoded, so that '#', '?', '%' or a space in the path is read as
+        # part of it (and read-only, so a wrong path can never create an empty database)
+        return sa.URL.create("sqlite", database="file:" + urllib.parse.quote(str(p.resolve())),
+                             query={"mode": "ro", "uri": "true"}), str(p)
     name = f"database from ${source.url_env}"
     raw = os.environ.get(source.url_env or "")
     if not raw:
@@ -265,6 +271,30 @@ def read_sql_source(source: Source, collector: Collector, tags: list[str], since
     return counts
 
 
+#: Most distinct tag names asked of a table for the "nearest tag names" hint.
+TAG_NAMES_LIMIT = 10_000
+
+
+def source_tag_names(source: Source, *, base_dir: Path | None = None, engine: sa.Engine | None = None) -> set[str]:
+    """Distinct tag names of a historian table (at most :data:`TAG_NAMES_LIMIT`), for the hint of a
+    missing tag; an empty set when the table cannot say (a query source, a database error)."""
+    if source.query:
+        return set()
+    url = None if engine is not None else source_url(source, base_dir)[0]
+    eng = engine if engine is not None else sa.create_engine(url)
+    schema, _, table = source.table.rpartition(".")
+    t = sa.table(table, sa.column(source.columns.tag), schema=schema or None)
+    stmt = sa.select(t.c[source.columns.tag]).distinct().limit(TAG_NAMES_LIMIT)
+    try:
+        with eng.connect() as conn:
+            return {r[0] for r in conn.execute(stmt) if isinstance(r[0], str)}
+    except sa.exc.SQLAlchemyError:
+        return set()
+    finally:
+        if engine is None:
+            eng.dispose()
+
+
 def _raw_execute(conn, stmt, params: dict):
     """Execute a compiled statement on the DBAPI connection; a server-side cursor where the driver has one."""
     compiled = stmt.compile(dialect=conn.dialect, compile_kwargs={"render_postcompile": True})
@@ -328,12 +358,9 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     for name in [c.timestamp, c.tag, c.value] + ([c.quality] if c.quality else []):
         if name not in have:
             raise err(f"no such column: {table}.{name}")
-    try:
-        lo, hi = raw.execute(f"SELECT min(rowid), max(rowid) FROM {tbl} WHERE {cond}", args).fetchone()
-    except Exception as exc:  # noqa: BLE001 - e.g. a WITHOUT ROWID table or a view: use the generic path
-        if "rowid" in str(exc):
-            return False
-        raise
+    if not _has_rowid(raw, schema, table, have):
+        return False      # a view, a WITHOUT ROWID or virtual table, or "rowid" names a column: streamed SELECT
+    lo, hi = raw.execute(f"SELECT min(rowid), max(rowid) FROM {tbl} WHERE {cond}", args).fetchone()
     counts.setdefault("rows", 0)
     if lo is None:
         return True
@@ -389,7 +416,7 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
 
     database = conn.engine.url.database or ""
     if database.startswith("file:"):  # a URI filename, as source_url writes for a read-only file
-        database = database[len("file:"):]
+        database = urllib.parse.unquote(database[len("file:"):].partition("?")[0])
     binary = RangeReader(database, step) if USE_SQLITE_ARROW and RangeReader.available(database) else None
     try:
         for a in range(lo, hi + 1, step):
@@ -406,6 +433,20 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
         if binary is not None:
             binary.close()
     return True
+
+
+def _has_rowid(raw, schema: str, table: str, columns: set[str]) -> bool:
+    """Whether a SQLite table has a rowid that ``rowid`` names: not a view (whose rowid is NULL on
+    every row, so a rowid range would read nothing), not a WITHOUT ROWID or virtual table, and no
+    column of its own called ``rowid``."""
+    master = ('"' + schema.replace('"', '""') + '".' if schema else "") + "sqlite_master"
+    row = raw.execute(f"SELECT type, sql FROM {master} WHERE lower(name) = lower(?)", [table]).fetchone()
+    if row is None:                     # e.g. a temporary table: let the generic path read it
+        return False
+    kind, sql = row[0], " ".join((row[1] or "").upper().split())
+    if kind != "table" or sql.startswith("CREATE VIRTUAL") or "WITHOUT ROWID" in sql:
+        return False
+    return "rowid" not in {c.lower() for c in columns}
 
 
 def _str_array(values) -> pa.Array:

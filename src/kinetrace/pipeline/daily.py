@@ -332,7 +332,8 @@ def _k_unit(model: UnitModel, rid: str) -> str:
 
 
 def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str | Path | None = None,
-              store: str | None = "config", progress=None, incremental: bool = False) -> tuple[list[UnitResult], Path]:
+              store: str | None = "config", progress=None, incremental: bool = False,
+              not_checked: list | None = None) -> tuple[list[UnitResult], Path]:
     """Run the daily check on every unit of a config, write one CSV per unit and fill the results store.
 
     Parameters
@@ -353,6 +354,9 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
         ignored): readings from ``INCREMENTAL_CONTEXT`` before the watermark are re-read as
         context, earlier results come from the store (``INCREMENTAL_HISTORY``), and only the
         intervals after the watermark are written. A unit without a watermark is run in full.
+    not_checked : list, optional
+        When given, a unit whose data cannot be read (an ingest error) is appended to it as
+        ``(unit id, reason)`` and the other units are still checked; else the error is raised.
 
     Returns
     -------
@@ -389,7 +393,11 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
             kwargs = dict(since=since)
         try:
             res = check_unit(cfg, model, config_path=config_path, until=until, **kwargs)
-        except IngestError:
+        except IngestError as exc:
+            if mark is None and not_checked is not None:
+                log.warning("unit %s not checked: %s", model.id, exc)
+                not_checked.append((model.id, str(exc)))
+                continue
             if mark is None:
                 raise
             log.info("unit %s: nothing new after its watermark %s", model.id, mark)
