@@ -59,6 +59,8 @@ def _details(r) -> str:
 
     from .kinetics.steady import steady_windows
 
+    if r.summary.get("verdict"):
+        return _verdict_details(r)
     s, m = r.series, r.model
     main = m.reaction_ids[0]
     last = s.loc[s.index > s.index[-1] - pd.Timedelta("24h")]
@@ -109,6 +111,26 @@ def _details(r) -> str:
         lines.append("  data quality:")
         lines += ["  " + ln for ln in quality_text(r.data).splitlines()[1:]]
     return "\n".join(lines)
+
+
+def _verdict_details(r) -> str:
+    """Detail of a unit that was not checked (down or no usable data): the verdict and the counts of its readings."""
+    from .ingest.summary import quality_text
+
+    s = r.series
+    span = f" ({s.index[0]:%Y-%m-%d %H:%M} to {s.index[-1]:%Y-%m-%d %H:%M} UTC)" if len(s) else ""
+    lines = ["", f"== {r.model.id}: {r.summary['status']}{span}", f"  {r.summary['verdict']}",
+             "  no rates, no reconciliation and no rate-law fit for this unit"]
+    if r.data is not None:
+        lines.append("  data quality:")
+        lines += ["  " + ln for ln in quality_text(r.data).splitlines()[1:]]
+    return "\n".join(lines)
+
+
+def _verdicts(results) -> list[str]:
+    """Attention reasons of the units that were not checked."""
+    return [f"unit {r.model.id}: {r.summary['status']}: {r.summary['verdict']}" for r in results
+            if r.summary.get("verdict")]
 
 
 def _run(config: Path, since, until, out, incremental: bool = False) -> tuple[list, Path]:
@@ -215,7 +237,9 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
     try:
         since, until = iso_window(since, until)
         results, out_dir = _run(config, since, until, out, incremental)
-        reasons = _attention(config)
+        reasons = _verdicts(results)
+        if len(reasons) < len(results) or not results:   # the store's alarms and days of the units checked
+            reasons += _attention(config)
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
         raise typer.Exit(EXIT_ERROR) from None

@@ -22,6 +22,7 @@ from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
 from .kinetics_step import fit_history, k_ref_band
 from .reconciliation import reconcile_unit
 from .roles import role_frame
+from .usable import VERDICTS, UnitNotCheckable, unit_verdict, verdict_series, verdict_summary
 
 log = logging.getLogger("kinetrace")
 
@@ -70,6 +71,9 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
 
     data = read_unit(cfg, model, config_path=config_path, since=since, until=until)
     roles = role_frame(data.values, data.valid, data.volume, model)
+    verdict = unit_verdict(roles, model)
+    if verdict is not None:
+        raise UnitNotCheckable(verdict, data, roles)
     measured = back_calculate(roles, model, fresh_k_ref=fresh_k_ref)
     rec = reconcile_unit(roles, model, steady=measured["steady"])
     series = back_calculate(rec.roles, model, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
@@ -272,6 +276,10 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
     with store.write_run(window, config_fingerprint=fingerprint) as run:
         for res in results:
             uid = res.model.id
+            if res.summary.get("status") in VERDICTS:   # not checked: the counts of its readings only
+                run.write_quality(uid, res.quality.select_dtypes("number"))
+                run.set_watermark(uid, res.series.index[-1])
+                continue
             frame, units = _series_for_store(res.series)
             run.write_series(uid, frame, units=units)
             q = res.quality.select_dtypes("number")
@@ -381,7 +389,7 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
         else:
             kwargs = dict(since=since)
         try:
-            res = check_unit(cfg, model, config_path=config_path, until=until, **kwargs)
+            res = _check_or_verdict(cfg, model, config_path=config_path, until=until, **kwargs)
         except IngestError:
             if mark is None:
                 raise
@@ -408,6 +416,25 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
         finally:
             db.close()
     return results, out
+
+
+def _check_or_verdict(cfg: PlantConfig, model: UnitModel, **kwargs) -> UnitResult:
+    """:func:`check_unit`, or the result of a unit that is down or has no usable data (no rates, no fit).
+
+    See :mod:`kinetrace.pipeline.usable`; the other units are still checked.
+    """
+    try:
+        return check_unit(cfg, model, **kwargs)
+    except UnitNotCheckable as exc:
+        verdict, data, roles = exc.verdict, exc.data, exc.roles
+    log.warning("unit %s: %s", model.id, verdict)
+    index = roles.index
+    if kwargs.get("keep_from") is not None:
+        index = index[index >= kwargs["keep_from"]]
+    result = UnitResult(model, verdict_series(verdict, index), roles, data.quality,
+                        verdict_summary(model, verdict, index))
+    result.data = data
+    return result
 
 
 def _redact(url: str) -> str:
