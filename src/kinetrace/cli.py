@@ -13,7 +13,7 @@ from pathlib import Path
 
 import typer
 
-from .cli_args import iso_day, iso_window
+from .cli_args import iso_day, iso_window, out_folder
 from .errors import KinetraceError
 
 app = typer.Typer(add_completion=False, no_args_is_help=True,
@@ -236,6 +236,7 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
     _setup_logging()
     try:
         since, until = iso_window(since, until)
+        out = out_folder(out)
         results, out_dir = _run(config, since, until, out, incremental)
         reasons = _verdicts(results)
         if len(reasons) < len(results) or not results:   # the store's alarms and days of the units checked
@@ -263,7 +264,7 @@ def report(config: Path = typer.Option(..., "--config", "-c", help="Plant config
     """Write the daily report for operations (HTML page and XLSX workbook) from the results store."""
     _setup_logging()
     try:
-        files = _write_report(config, iso_day(date), out)
+        files = _write_report(config, iso_day(date), out_folder(out))
     except KinetraceError as exc:
         typer.echo(f"kinetrace: {exc}", err=True)
         raise typer.Exit(EXIT_ERROR) from None

@@ -365,7 +365,11 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
 
     cfg = load_config(config_path)
     out = (Path(out_dir) if out_dir else resolve_path(config_path, cfg.analysis.output_dir)).resolve()
-    out.mkdir(parents=True, exist_ok=True)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise KinetraceError(f"output folder {out} cannot be created ({exc.strerror or exc}); "
+                             "analysis.output_dir or --out must name a folder") from None
     url = None if store is None else (store_url(cfg, config_path) if store == "config" else store)
     if incremental and url is None:
         raise KinetraceError("an incremental check needs the results store (it keeps the watermarks)")

@@ -10,15 +10,19 @@ from typing import Iterator
 
 import pandas as pd
 from sqlalchemy import Engine, create_engine, event, insert, select, text, update
-from sqlalchemy.exc import ArgumentError, OperationalError
+from sqlalchemy.exc import ArgumentError, DatabaseError
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import NoSuchModuleError
 
+from ..redact import redact_url, scrub
 from . import reader
 from .schema import RESULT_TABLES, SCHEMA_VERSION, StoreError, metadata, runs, store_meta, to_utc
 from .writer import RunWriter
 
 SUPPORTED_DIALECTS = ("sqlite", "postgresql")
+#: Drivers of each back end the store is written for (the PostgreSQL bulk writer uses psycopg 3's COPY),
+#: and the package that provides each.
+SUPPORTED_DRIVERS = {"sqlite": {"pysqlite": "Python's own sqlite3 module"}, "postgresql": {"psycopg": "psycopg[binary]"}}
 
 
 def fingerprint(source) -> str:
@@ -95,12 +99,25 @@ def open_store(url: str, *, create: bool = True, echo: bool = False, base_dir=No
     True
     """
     if not isinstance(url, str) or not url:
-        raise StoreError(f"store url must be a non-empty string, got {url!r}")
+        raise StoreError(f"store url must be a non-empty string, got {type(url).__name__}")
     if url.startswith("postgresql://"):
         url = "postgresql+psycopg://" + url[len("postgresql://"):]
+    shown = redact_url(url)
     try:
         parsed = make_url(url)
-        if parsed.get_backend_name() == "sqlite" and parsed.database not in (None, "", ":memory:") \
+    except (ArgumentError, ValueError):
+        raise StoreError(f"store url {shown!r} cannot be parsed (expected e.g. sqlite:///out/results.sqlite or "
+                         "postgresql+psycopg://user@host:5432/database)") from None
+    backend, _, driver = parsed.drivername.partition("+")
+    driver = driver or {"sqlite": "pysqlite", "postgresql": "psycopg2"}.get(backend, "")   # SQLAlchemy's defaults
+    if backend not in SUPPORTED_DRIVERS:
+        raise StoreError(f"store url {shown!r}: back end {backend!r} is not supported; use one of "
+                         f"{list(SUPPORTED_DIALECTS)}")
+    if driver not in SUPPORTED_DRIVERS[backend]:
+        raise StoreError(f"store url {shown!r}: driver {driver!r} of {backend} is not supported; use "
+                         + " or ".join(f"{backend}+{d}://..." for d in SUPPORTED_DRIVERS[backend]))
+    try:
+        if backend == "sqlite" and parsed.database not in (None, "", ":memory:") \
                 and not parsed.database.startswith("file:"):
             path = Path(parsed.database)
             if not path.is_absolute() and base_dir is not None:
@@ -108,11 +125,14 @@ def open_store(url: str, *, create: bool = True, echo: bool = False, base_dir=No
             path.parent.mkdir(parents=True, exist_ok=True)
             parsed = parsed.set(database=str(path))
         engine = create_engine(parsed, echo=echo)
-    except (ArgumentError, NoSuchModuleError) as exc:
-        raise StoreError(f"store url {url!r} cannot be used: {exc}") from None
-    if engine.dialect.name not in SUPPORTED_DIALECTS:
-        raise StoreError(f"store url {url!r}: back end {engine.dialect.name!r} is not supported; "
-                         f"use one of {list(SUPPORTED_DIALECTS)}")
+    except (ArgumentError, NoSuchModuleError, TypeError, ValueError) as exc:
+        raise StoreError(f"store url {shown!r} cannot be used: {scrub(exc, url)}") from None
+    except ImportError:
+        raise StoreError(f"store url {shown!r}: its driver {driver!r} is not installed; install it with "
+                         f"pip install '{SUPPORTED_DRIVERS[backend][driver]}'") from None
+    except OSError as exc:
+        raise StoreError(f"store url {shown!r}: the folder of the SQLite file cannot be created "
+                         f"({exc.strerror or exc})") from None
     if engine.dialect.name == "sqlite":
         event.listen(engine, "connect", _sqlite_connect)
         event.listen(engine, "begin", _sqlite_begin)
@@ -121,9 +141,13 @@ def open_store(url: str, *, create: bool = True, echo: bool = False, base_dir=No
         if create:
             store.create()
         store.check_version()
-    except OperationalError as exc:
-        raise StoreError(f"store {engine.url.render_as_string(hide_password=True)}: cannot open: "
-                         f"{exc.orig}") from None
+    except DatabaseError as exc:
+        store.close()
+        detail = scrub(str(exc.orig).strip().splitlines()[0] if str(exc.orig).strip() else type(exc.orig).__name__, url)
+        if backend == "sqlite" and "not a database" in detail:
+            raise StoreError(f"store {shown}: the file {parsed.database} is not a SQLite database "
+                             f"({detail}); point the store at a new or an existing results file") from None
+        raise StoreError(f"store {shown}: cannot open: {detail}") from None
     return store
 
 
@@ -138,7 +162,7 @@ class Store:
         self.engine = engine
 
     def __repr__(self) -> str:
-        return f"Store({self.engine.url.render_as_string(hide_password=True)!r})"
+        return f"Store({redact_url(self.engine.url)!r})"
 
     @property
     def dialect(self) -> str:
