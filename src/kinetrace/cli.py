@@ -15,6 +15,7 @@ import typer
 
 from .cli_args import iso_day, iso_window, out_folder
 from .errors import KinetraceError
+from .redact import scrub
 
 app = typer.Typer(add_completion=False, no_args_is_help=True,
                   help="Daily performance check of continuous stirred-tank reactors.")
@@ -23,9 +24,32 @@ ROOT = Path(__file__).resolve().parents[2]
 DEMO_CONFIG = ROOT / "config" / "demo_plant.toml"
 
 
+def _secret_urls() -> list[str]:
+    """URLs whose passwords no message may repeat: the store and historian URLs of the environment."""
+    import os
+
+    return [v for k, v in os.environ.items() if "://" in v and ("URL" in k.upper() or k.startswith("KT"))]
+
+
+class _Redacting(logging.Filter):
+    """Every log line through :func:`kinetrace.redact.scrub` (URLs and the environment's passwords hidden)."""
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        record.msg, record.args = scrub(record.getMessage(), *_secret_urls()), ()
+        return True
+
+
 def _setup_logging() -> None:
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(name)s: %(message)s",
                         stream=sys.stderr)
+    for handler in logging.getLogger().handlers:
+        if not any(isinstance(f, _Redacting) for f in handler.filters):
+            handler.addFilter(_Redacting())
+
+
+def _say_error(exc: Exception) -> None:
+    """One line (or one block of problems) on stderr, with every password hidden."""
+    typer.echo(f"kinetrace: {scrub(exc, *_secret_urls())}", err=True)
 
 
 def _fmt(x: float, spec: str) -> str:
@@ -179,7 +203,7 @@ def _internal_error(doing: str, config: Path | None, out: Path | None) -> typer.
         try:
             base.mkdir(parents=True, exist_ok=True)
             path = base / f"kinetrace-internal-error-{stamp}.txt"
-            path.write_text(traceback.format_exc())
+            path.write_text(scrub(traceback.format_exc(), *_secret_urls()))
             break
         except OSError:
             path = None
@@ -242,7 +266,7 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
         if len(reasons) < len(results) or not results:   # the store's alarms and days of the units checked
             reasons += _attention(config)
     except KinetraceError as exc:
-        typer.echo(f"kinetrace: {exc}", err=True)
+        _say_error(exc)
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("running the check", config, out) from None
@@ -266,7 +290,7 @@ def report(config: Path = typer.Option(..., "--config", "-c", help="Plant config
     try:
         files = _write_report(config, iso_day(date), out_folder(out))
     except KinetraceError as exc:
-        typer.echo(f"kinetrace: {exc}", err=True)
+        _say_error(exc)
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("writing the report", config, out) from None
@@ -293,7 +317,7 @@ def demo(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c", help="Demo p
         results, out_dir = _run(config, None, None, None)
         files = _write_report(config)
     except KinetraceError as exc:
-        typer.echo(f"kinetrace: {exc}", err=True)
+        _say_error(exc)
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("running the demo", config, None) from None

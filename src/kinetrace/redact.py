@@ -23,6 +23,27 @@ _USERINFO = re.compile(r"(?P<head>[A-Za-z][A-Za-z0-9+.\-]*://[^:@/\s]*:)(?P<pw>[
 _KEYWORD = re.compile(r"(?i)(?P<head>\b(?:password|passwd|pwd|sslpassword)\s*=\s*)(?P<pw>'[^']*'|\"[^\"]*\"|[^&\s;]+)")
 
 
+def _candidates(url) -> list[str]:
+    """Every reading of a URL's password: SQLAlchemy's parse and the patterns (which differ when an
+    '@' or '/' in the password was not percent-encoded), longest first, without readings inside others."""
+    found = []
+    try:
+        from sqlalchemy.engine import make_url
+
+        parsed = url if hasattr(url, "password") else make_url(url)
+        for pw in (parsed.password, parsed.query.get("password")):
+            if pw is not None:
+                found.append(str(pw[0] if isinstance(pw, tuple) else pw))
+    except Exception:  # noqa: BLE001 - a URL that does not parse: the patterns below still read it
+        pass
+    text = url.render_as_string(hide_password=False) if hasattr(url, "render_as_string") else str(url)
+    for pattern in (_USERINFO, _KEYWORD):
+        for m in pattern.finditer(text):
+            found.append(unquote(m.group("pw")))
+    found = sorted({f.strip("'\"") for f in found if f.strip("'\"") and f.strip("'\"") != MASK}, key=len, reverse=True)
+    return [f for i, f in enumerate(found) if not any(f in longer for longer in found[:i])]
+
+
 def url_password(url) -> str | None:
     """The password a URL carries (decoded), or None; never raises.
 
@@ -33,14 +54,8 @@ def url_password(url) -> str | None:
     """
     if url is None:
         return None
-    try:
-        from sqlalchemy.engine import make_url
-
-        pw = make_url(url).password if not hasattr(url, "password") else url.password
-        return None if pw is None else str(pw)
-    except Exception:  # noqa: BLE001 - a URL that does not parse: take what the pattern finds
-        m = _USERINFO.search(str(url))
-        return unquote(m.group("pw")) if m and m.group("pw") else None
+    found = _candidates(url)
+    return found[0] if found else None
 
 
 def redact_url(url) -> str:
@@ -88,9 +103,11 @@ def scrub(text, *urls) -> str:
     "could not connect: password '***' rejected"
     """
     out = redact_url(str(text))
+    forms = set()
     for u in urls:
-        pw = url_password(u)
-        if pw:
-            for form in {pw, quote(pw, safe=""), quote(pw)}:
-                out = out.replace(form, MASK)
+        if u is not None:
+            for pw in _candidates(u):
+                forms |= {pw, quote(pw, safe=""), quote(pw)}
+    for form in sorted(forms, key=len, reverse=True):
+        out = out.replace(form, MASK)
     return out

@@ -123,6 +123,19 @@ class Store(_Strict):
     url: str | None = None
     url_env: str | None = None
 
+    @field_validator("url")
+    @classmethod
+    def _no_password_in_file(cls, v):
+        """A config file is read, copied and versioned by many people: a password stays out of it."""
+        from ..redact import redact_url, url_password
+
+        if v is not None and url_password(v):
+            raise ValueError(
+                f"holds a password ({redact_url(v)}); a configuration file must not: remove store.url and put "
+                f"the URL in the environment instead, e.g. export KINETRACE_STORE_URL='{redact_url(v)}' with the "
+                "real password in place of ***, or name your own variable with store.url_env")
+        return v
+
 
 class Analysis(_Strict):
     """Settings of the daily check."""

@@ -16,6 +16,7 @@ import pandas as pd
 
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError, KinetraceError
+from ..redact import redact_url
 from .backcalc import back_calculate
 from .feed import analysed_flags, monitoring_feed
 from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
@@ -414,7 +415,7 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
                 window = (min(r.series.index[0] for r in results), max(r.series.index[-1] for r in results) + grid)
                 run_id = write_results(db, results, window=window,
                                        fingerprint=result_store.fingerprint(Path(config_path).read_bytes()))
-                log.info("results of run %s written to the store %s", run_id, _redact(url))
+                log.info("results of run %s written to the store %s", run_id, redact_url(url))
             else:
                 log.info("no new data for any unit; the store is unchanged")
         finally:
@@ -439,16 +440,6 @@ def _check_or_verdict(cfg: PlantConfig, model: UnitModel, **kwargs) -> UnitResul
                         verdict_summary(model, verdict, index))
     result.data = data
     return result
-
-
-def _redact(url: str) -> str:
-    """A URL with its password hidden, for logs."""
-    from sqlalchemy.engine import make_url
-
-    try:
-        return make_url(url).render_as_string(hide_password=True)
-    except Exception:  # noqa: BLE001 - a malformed URL is logged as such, never echoed
-        return "<store url>"
 
 
 def _safe(name: str) -> str:

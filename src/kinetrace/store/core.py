@@ -253,7 +253,7 @@ class Store:
                         status="complete", finished=pd.Timestamp.now(tz="UTC"),
                         message=_summary(writer.rows_written)))
         except BaseException as exc:
-            err_text = "".join(traceback.format_exception_only(type(exc), exc)).strip()
+            err_text = scrub("".join(traceback.format_exception_only(type(exc), exc)).strip(), self.engine.url)
             with self.engine.begin() as conn:
                 conn.execute(update(runs).where(runs.c.run_id == run_id).values(
                     status="failed", finished=pd.Timestamp.now(tz="UTC"), message=err_text[:4000]))
