@@ -16,7 +16,7 @@ from sqlalchemy.exc import NoSuchModuleError
 
 from ..redact import redact_url, scrub
 from . import reader
-from .schema import RESULT_TABLES, SCHEMA_VERSION, StoreError, metadata, runs, store_meta, to_utc
+from .schema import RESULT_TABLES, RUN_STATES, SCHEMA_VERSION, StoreError, metadata, runs, store_meta, to_utc
 from .writer import RunWriter
 
 SUPPORTED_DIALECTS = ("sqlite", "postgresql")
@@ -54,6 +54,8 @@ def fingerprint(source) -> str:
 
 #: Key of the PostgreSQL advisory lock that serialises runs on one database.
 RUN_LOCK_KEY = 0x6B74_0001
+#: Key of the PostgreSQL session advisory lock that is the run lease (see :meth:`Store.write_run`).
+RUN_LEASE_KEY = 0x6B74_0002
 
 
 def _sqlite_connect(dbapi_conn, _record) -> None:
@@ -170,12 +172,13 @@ class Store:
         return self.engine.dialect.name
 
     def create(self) -> None:
-        """Create missing tables and record the schema version."""
+        """Create missing tables, record the schema version, and let an older runs table hold 'abandoned'."""
         with self.engine.begin() as conn:
             metadata.create_all(conn, checkfirst=True)
             have = conn.execute(select(store_meta.c.value).where(store_meta.c.key == "schema_version")).scalar()
             if have is None:
                 conn.execute(insert(store_meta).values(key="schema_version", value=str(SCHEMA_VERSION)))
+            _upgrade_run_states(conn)
 
     def check_version(self) -> None:
         """Refuse a store written with another table layout."""
@@ -199,8 +202,13 @@ class Store:
         final status ``complete`` are committed together when the block ends. An
         exception rolls every result back (the previous results stay as they were) and
         marks the run ``failed`` with the error; a process killed in the block leaves
-        the run ``running`` with no finish time, and the results untouched. Runs on
-        one store are serialised (SQLite ``BEGIN IMMEDIATE``; a PostgreSQL
+        the run ``running`` with no finish time, and the results untouched, until the
+        next run on the store starts and marks it ``abandoned``. Each run holds the
+        store's run lease from before its record is written until its final status is
+        committed (a lease bound to the process, not a heartbeat; see
+        :meth:`_run_lease`), so a run that holds the lease knows every other ``running``
+        record is an orphan, and never takes a live run for one. Runs on one store
+        are serialised (the lease; SQLite ``BEGIN IMMEDIATE``; a PostgreSQL
         transaction-level advisory lock), so two runs of the same window never mix:
         the one that commits last wins.
 
@@ -236,11 +244,23 @@ class Store:
         if not isinstance(config_fingerprint, str) or not config_fingerprint:
             raise StoreError("config_fingerprint must be a non-empty string (see kinetrace.store.fingerprint)")
         started = pd.Timestamp.now(tz="UTC") if started is None else to_utc(started, "started")
-        with self.engine.begin() as conn:
-            run_id = conn.execute(insert(runs).values(
-                started=started, status="running", config_fingerprint=config_fingerprint,
-                window_start=start, window_end=end,
-                software_version=software_version or __version__).returning(runs.c.run_id)).scalar_one()
+        with self._run_lease():
+            with self.engine.begin() as conn:
+                # holding the lease, no other run is alive: a 'running' record is an orphan
+                stale = conn.execute(select(runs.c.run_id).where(runs.c.status == "running")).scalars().all()
+                run_id = conn.execute(insert(runs).values(
+                    started=started, status="running", config_fingerprint=config_fingerprint,
+                    window_start=start, window_end=end,
+                    software_version=software_version or __version__).returning(runs.c.run_id)).scalar_one()
+                if stale:
+                    conn.execute(update(runs).where(runs.c.run_id.in_(stale)).values(
+                        status="abandoned", finished=pd.Timestamp.now(tz="UTC"),
+                        message=f"abandoned: its process ended before the run finished (it no longer held the "
+                                f"run lease); found by run {run_id}"))
+            yield from self._write(run_id, start, end)
+
+    def _write(self, run_id: int, start, end):
+        """The body of :meth:`write_run` once its record exists (the caller holds the run lease)."""
         try:
             with self.engine.connect() as conn:
                 conn.execution_options(kinetrace_run=True)
@@ -258,6 +278,44 @@ class Store:
                 conn.execute(update(runs).where(runs.c.run_id == run_id).values(
                     status="failed", finished=pd.Timestamp.now(tz="UTC"), message=err_text[:4000]))
             raise
+
+    @contextmanager
+    def _run_lease(self):
+        """Hold the store's run lease: one run at a time, and released by the OS when its process dies.
+
+        A lease bound to the process, not a heartbeat: on PostgreSQL a session-level advisory lock
+        (the server drops it when the connection closes, which a killed process's kernel does at
+        once; a host that vanishes without closing its socket is noticed after the TCP keepalive
+        time); beside a SQLite file an exclusive ``flock`` on ``<file>.run-lease`` (dropped by the
+        kernel with the process). An in-memory SQLite store lives in one process and needs none;
+        on a system without ``fcntl`` (Windows) the SQLite lease is not taken.
+        """
+        if self.dialect == "postgresql":
+            with self.engine.connect() as conn:
+                conn = conn.execution_options(isolation_level="AUTOCOMMIT")
+                conn.execute(text("SELECT pg_advisory_lock(:k)"), {"k": RUN_LEASE_KEY})
+                try:
+                    yield
+                finally:
+                    try:
+                        conn.execute(text("SELECT pg_advisory_unlock(:k)"), {"k": RUN_LEASE_KEY})
+                    except Exception:  # noqa: BLE001 - a broken connection: closing it drops the lease
+                        conn.invalidate()
+            return
+        database = self.engine.url.database
+        try:
+            import fcntl
+        except ImportError:  # pragma: no cover - not on POSIX
+            fcntl = None
+        if fcntl is None or database in (None, "", ":memory:") or database.startswith("file:"):
+            yield
+            return
+        with open(f"{database}.run-lease", "a+b") as fh:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+            try:
+                yield
+            finally:
+                fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
 
     # -- reading --------------------------------------------------------------------------
     def _read(self, fn, *args, **kw):
@@ -311,6 +369,31 @@ class Store:
     def dump(self, tables=RESULT_TABLES) -> dict[str, pd.DataFrame]:
         """Every row of the result tables (by name), ordered by primary key."""
         return {name: self._read(reader.read_table, metadata.tables[name]) for name in tables}
+
+
+def _upgrade_run_states(conn) -> None:
+    """Replace a runs-status constraint written before 'abandoned' existed (same table, looser check).
+
+    PostgreSQL: drop and add the constraint. SQLite cannot alter a CHECK constraint; its table
+    text in ``sqlite_schema`` is edited as SQLite's documentation of ALTER TABLE describes for a
+    change that leaves the stored rows valid ("Making Other Kinds Of Table Schema Changes").
+    """
+    states = "status IN (" + ", ".join(f"'{x}'" for x in RUN_STATES) + ")"
+    if conn.dialect.name == "postgresql":
+        have = conn.execute(text("SELECT pg_get_constraintdef(oid) FROM pg_constraint WHERE conname = 'runs_status' "
+                                 "AND conrelid = 'runs'::regclass")).scalar()
+        if have is not None and "abandoned" not in have:
+            conn.execute(text("ALTER TABLE runs DROP CONSTRAINT runs_status"))
+            conn.execute(text(f"ALTER TABLE runs ADD CONSTRAINT runs_status CHECK ({states})"))
+        return
+    sql = conn.execute(text("SELECT sql FROM sqlite_master WHERE type = 'table' AND name = 'runs'")).scalar()
+    if sql and "abandoned" not in sql:
+        new = sql.replace("'complete', 'failed')", "'complete', 'failed', 'abandoned')")
+        version = conn.exec_driver_sql("PRAGMA schema_version").scalar()
+        conn.exec_driver_sql("PRAGMA writable_schema = ON")
+        conn.execute(text("UPDATE sqlite_master SET sql = :s WHERE type = 'table' AND name = 'runs'"), {"s": new})
+        conn.exec_driver_sql(f"PRAGMA schema_version = {int(version) + 1}")
+        conn.exec_driver_sql("PRAGMA writable_schema = OFF")
 
 
 def _summary(counts: dict[str, int]) -> str:
