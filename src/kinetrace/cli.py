@@ -25,17 +25,20 @@ DEMO_CONFIG = ROOT / "config" / "demo_plant.toml"
 
 
 def _secret_urls() -> list[str]:
-    """URLs whose passwords no message may repeat: the store and historian URLs of the environment."""
+    """URLs whose passwords no message may repeat: every URL in the environment (store, historian ...)."""
     import os
 
-    return [v for k, v in os.environ.items() if "://" in v and ("URL" in k.upper() or k.startswith("KT"))]
+    return [v for v in os.environ.values() if "://" in v]
 
 
 class _Redacting(logging.Filter):
     """Every log line through :func:`kinetrace.redact.scrub` (URLs and the environment's passwords hidden)."""
 
     def filter(self, record: logging.LogRecord) -> bool:
-        record.msg, record.args = scrub(record.getMessage(), *_secret_urls()), ()
+        try:
+            record.msg, record.args = scrub(record.getMessage(), *_secret_urls()), ()
+        except Exception:  # noqa: BLE001 - a line that cannot be formatted is shown redacted as written
+            record.msg, record.args = scrub(str(record.msg)), ()
         return True
 
 
