@@ -26,6 +26,7 @@ from sqlalchemy import func, select
 from sqlalchemy.engine import make_url
 
 from kinetrace.errors import KinetraceError
+from kinetrace.redact import redact_url, scrub
 from kinetrace.store import Store, StoreError, open_store
 from kinetrace.store.bulk import ts_as_epoch_us
 from kinetrace.store.schema import series_keys, series_values
@@ -84,10 +85,7 @@ def safe_url(url: str) -> str:
     >>> safe_url("postgresql+psycopg://kt:secret@db:5432/results")
     'postgresql+psycopg://kt:***@db:5432/results'
     """
-    try:
-        return make_url(url).render_as_string(hide_password=True)
-    except Exception:  # noqa: BLE001 - a URL that does not parse is shown as "(unparsable URL)"
-        return "(unparsable URL)"
+    return redact_url(url)
 
 
 def connect(url: str) -> Store:
@@ -101,7 +99,7 @@ def connect(url: str) -> Store:
     try:
         parsed = make_url(url)
     except Exception as exc:  # noqa: BLE001
-        raise StoreUnavailable(f"store URL {safe_url(url)} cannot be parsed: {exc}") from None
+        raise StoreUnavailable(f"store URL {safe_url(url)} cannot be parsed: {scrub(exc, url)}") from None
     if parsed.get_backend_name() == "sqlite" and parsed.database not in (None, "", ":memory:"):
         if not Path(parsed.database).is_file():
             raise StoreUnavailable(f"no results store at {parsed.database} yet; run `kinetrace check` "
@@ -109,10 +107,10 @@ def connect(url: str) -> Store:
     try:
         return open_store(url, create=False)
     except (StoreError, OSError) as exc:
-        raise StoreUnavailable(f"results store {safe_url(url)} cannot be read: {exc}") from None
+        raise StoreUnavailable(f"results store {safe_url(url)} cannot be read: {scrub(exc, url)}") from None
     except Exception as exc:  # noqa: BLE001 - driver errors (server down, bad credentials)
         raise StoreUnavailable(f"results store {safe_url(url)} cannot be reached: "
-                               f"{type(exc).__name__}: {exc}") from None
+                               f"{type(exc).__name__}: {scrub(exc, url)}") from None
 
 
 def _us(ts) -> int:

@@ -13,8 +13,9 @@ from pathlib import Path
 
 import typer
 
-from .cli_args import iso_day, iso_window
+from .cli_args import iso_day, iso_window, out_folder
 from .errors import KinetraceError
+from .redact import scrub
 
 app = typer.Typer(add_completion=False, no_args_is_help=True, rich_markup_mode="markdown",
                   help="Daily performance check of continuous stirred-tank reactors.")
@@ -23,9 +24,35 @@ ROOT = Path(__file__).resolve().parents[2]
 DEMO_CONFIG = ROOT / "config" / "demo_plant.toml"
 
 
+def _secret_urls() -> list[str]:
+    """URLs whose passwords no message may repeat: every URL in the environment (store, historian ...)."""
+    import os
+
+    return [v for v in os.environ.values() if "://" in v]
+
+
+class _Redacting(logging.Filter):
+    """Every log line through :func:`kinetrace.redact.scrub` (URLs and the environment's passwords hidden)."""
+
+    def filter(self, record: logging.LogRecord) -> bool:
+        try:
+            record.msg, record.args = scrub(record.getMessage(), *_secret_urls()), ()
+        except Exception:  # noqa: BLE001 - a line that cannot be formatted is shown redacted as written
+            record.msg, record.args = scrub(str(record.msg)), ()
+        return True
+
+
 def _setup_logging() -> None:
     logging.basicConfig(level=logging.INFO, format="%(asctime)s %(levelname)s %(name)s: %(message)s",
                         stream=sys.stderr)
+    for handler in logging.getLogger().handlers:
+        if not any(isinstance(f, _Redacting) for f in handler.filters):
+            handler.addFilter(_Redacting())
+
+
+def _say_error(exc: Exception) -> None:
+    """One line (or one block of problems) on stderr, with every password hidden."""
+    typer.echo(f"kinetrace: {scrub(exc, *_secret_urls())}", err=True)
 
 
 def _fmt(x: float, spec: str) -> str:
@@ -80,6 +107,8 @@ def _details(r) -> str:
 
     from .kinetics.steady import steady_windows
 
+    if r.summary.get("verdict"):
+        return _verdict_details(r)
     s, m = r.series, r.model
     main = m.reaction_ids[0]
     last = s.loc[s.index > s.index[-1] - pd.Timedelta("24h")]
@@ -150,6 +179,26 @@ def _details(r) -> str:
     return "\n".join(lines)
 
 
+def _verdict_details(r) -> str:
+    """Detail of a unit that was not checked (down or no usable data): the verdict and the counts of its readings."""
+    from .ingest.summary import quality_text
+
+    s = r.series
+    span = f" ({s.index[0]:%Y-%m-%d %H:%M} to {s.index[-1]:%Y-%m-%d %H:%M} UTC)" if len(s) else ""
+    lines = ["", f"== {r.model.id}: {r.summary['status']}{span}", f"  {r.summary['verdict']}",
+             "  no rates, no reconciliation and no rate-law fit for this unit"]
+    if r.data is not None:
+        lines.append("  data quality:")
+        lines += ["  " + ln for ln in quality_text(r.data).splitlines()[1:]]
+    return "\n".join(lines)
+
+
+def _verdicts(results) -> list[str]:
+    """Attention reasons of the units that were not checked."""
+    return [f"unit {r.model.id}: {r.summary['status']}: {r.summary['verdict']}" for r in results
+            if r.summary.get("verdict")]
+
+
 def _run(config: Path, since, until, out, incremental: bool = False, not_checked: list | None = None
          ) -> tuple[list, Path]:
     from .pipeline import run_check
@@ -197,7 +246,7 @@ def _internal_error(doing: str, config: Path | None, out: Path | None) -> typer.
         try:
             base.mkdir(parents=True, exist_ok=True)
             path = base / f"kinetrace-internal-error-{stamp}.txt"
-            path.write_text(traceback.format_exc())
+            path.write_text(scrub(traceback.format_exc(), *_secret_urls()))
             break
         except OSError:
             path = None
@@ -265,12 +314,16 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
     not_checked: list = []      # (unit id, reason): units whose data could not be read
     try:
         since, until = iso_window(since, until)
+        out = out_folder(out)
         results, out_dir = _run(config, since, until, out, incremental, not_checked)
         if not_checked and not results and len(not_checked) == _unit_count(config):
             raise KinetraceError("no unit could be checked:\n" + "\n".join(r for _, r in not_checked))
-        reasons, verdicts = _attention(config)
+        reasons, verdicts = _verdicts(results), []
+        if len(reasons) < len(results) or not results:   # the store's alarms and days of the units checked
+            more, verdicts = _attention(config)
+            reasons += more
     except KinetraceError as exc:
-        typer.echo(f"kinetrace: {exc}", err=True)
+        _say_error(exc)
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("running the check", config, out) from None
@@ -293,9 +346,9 @@ def report(config: Path = typer.Option(..., "--config", "-c", help="Plant config
     """Write the daily report for operations (HTML page and XLSX workbook) from the results store."""
     _setup_logging()
     try:
-        files = _write_report(config, iso_day(date), out)
+        files = _write_report(config, iso_day(date), out_folder(out))
     except KinetraceError as exc:
-        typer.echo(f"kinetrace: {exc}", err=True)
+        _say_error(exc)
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("writing the report", config, out) from None
@@ -323,7 +376,7 @@ def demo(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c", help="Demo p
         results, out_dir = _run(config, None, None, None)
         files = _write_report(config)
     except KinetraceError as exc:
-        typer.echo(f"kinetrace: {exc}", err=True)
+        _say_error(exc)
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("running the demo", config, None) from None

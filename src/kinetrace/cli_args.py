@@ -17,7 +17,7 @@ import pandas as pd
 
 from .errors import KinetraceError
 
-__all__ = ["iso_time", "iso_window", "iso_day"]
+__all__ = ["iso_time", "iso_window", "iso_day", "out_folder"]
 
 _ISO = re.compile(r"\d{4}-\d{2}-\d{2}(?:[T ]\d{2}:\d{2}(?::\d{2}(?:\.\d{1,9})?)?(?:Z|[+-]\d{2}:?\d{2})?)?")
 _EXAMPLES = "e.g. 2026-11-01, 2026-11-01T06:00, 2026-11-01T06:00:00+01:00 or 2026-11-01T05:00Z"
@@ -82,3 +82,19 @@ def iso_day(value: str | None, option: str = "--date") -> str | None:
         raise KinetraceError(f"{option} {value!r} is not a day written YYYY-MM-DD (e.g. 2026-11-29)")
     iso_time(value, option)
     return str(value).strip()
+
+
+def out_folder(value, option: str = "--out"):
+    """An output folder argument, checked: it may be missing (it is created) but not a file.
+
+    >>> out_folder(None) is None
+    True
+    """
+    from pathlib import Path
+
+    if value is None:
+        return None
+    p = Path(value)
+    if p.exists() and not p.is_dir():
+        raise KinetraceError(f"{option} {str(value)!r} is a file; give a folder (it is created if missing)")
+    return p

@@ -45,3 +45,18 @@ def test_errors(rng):
         estimate_sigma(y, np.r_[np.ones(5, bool), np.zeros(45, bool)])
     with pytest.raises(ReconciliationError, match="overlaps"):
         estimate_sigma(y, [(0, 20), (10, 30)])
+
+
+@pytest.mark.parametrize("method", sigma_methods())
+def test_no_steady_step_or_no_finite_reading_is_a_clear_error(rng, method):
+    """A unit that is down (no steady step) or whose readings are all unusable (all NaN) gives a
+    ReconciliationError naming the variable, never an IndexError (common practice, no source)."""
+    y = rng.standard_normal((50, 2))
+    with pytest.raises(ReconciliationError, match=r"no steady stretch"):
+        estimate_sigma(y, np.zeros(50, bool), method=method, names=["feed_flow", "outlet_flow"])
+    with pytest.raises(ReconciliationError, match=r"no steady stretch"):
+        estimate_sigma(y, [], method=method)
+    with pytest.raises(ReconciliationError, match=r"cannot estimate sigma of 'feed_flow'.*no finite reading"):
+        estimate_sigma(np.full((50, 2), np.nan), np.ones(50, bool), method=method, names=["feed_flow", "outlet_flow"])
+    with pytest.raises(ReconciliationError, match=r"no steady stretch"):
+        estimate_sigma(np.empty((0, 2)), np.zeros(0, bool), method=method)

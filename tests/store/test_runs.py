@@ -130,11 +130,13 @@ def test_run_killed_mid_write_leaves_last_good_state(store_url, tmp_path):
     assert_dumps_equal(good, again.dump())
     runs = again.runs()
     assert runs["status"].tolist() == ["complete", "running"]       # the killed run is visible as such
+    killed = runs["run_id"].iloc[1]
     assert pd.isna(runs["finished"].iloc[1])
     # the store stays usable: a new run of the same window completes
     with again.write_run((W0, W1), config_fingerprint=FP) as run:
         fill_window(run, W0, W1, freq="10min")
     assert_dumps_equal(_without_provenance(good), _without_provenance(again.dump()))
+    assert again.runs().set_index("run_id").loc[killed, "status"] == "abandoned"   # found by the new run
 
 
 @pytest.mark.postgres

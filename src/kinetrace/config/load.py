@@ -9,7 +9,6 @@ checked here. Both are reported at once, each with its key path, in one
 
 from __future__ import annotations
 
-import tomllib
 import zoneinfo
 from pathlib import Path
 
@@ -47,14 +46,10 @@ def load_config(path: str | Path) -> PlantConfig:
     ConfigError
         Listing every problem found, each with its key path.
     """
+    from .text import read_toml
+
     path = Path(path)
-    try:
-        raw = tomllib.loads(path.read_text(encoding="utf-8"))
-    except FileNotFoundError:
-        raise ConfigError(str(path), [Problem("(file)", "file not found")]) from None
-    except tomllib.TOMLDecodeError as exc:
-        raise ConfigError(str(path), [Problem("(TOML syntax)", str(exc))]) from None
-    return validate_config(raw, source=str(path))
+    return validate_config(read_toml(path), source=str(path))
 
 
 def validate_config(raw: dict, source: str = "<config>") -> PlantConfig:

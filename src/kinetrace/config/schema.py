@@ -28,7 +28,26 @@ MolarMass = Annotated[float, _q("molar_mass")]
 Concentration = Annotated[float, _q("concentration")]
 InverseConcentration = Annotated[float, _q("inverse_concentration")]
 VolumetricFlow = Annotated[float, _q("volumetric_flow")]
-Duration = Annotated[float, _q("time")]
+
+
+def _duration(low: float, high: float, allowed: str, *, low_open: bool = False):
+    """A time span in SI, refused (with the value as written and the range) outside ``[low, high]``. [s]"""
+    def check(v):
+        x = parse_quantity(v, "time")
+        if not ((low < x if low_open else low <= x) and x <= high):   # NaN fails both
+            raise ValueError(f"duration {v!r} is outside the allowed range {allowed}")
+        return x
+    return BeforeValidator(check)
+
+
+_DAY = 86400.0
+#: A positive time span up to a year (hold limits, flat-line limits, ages of lab values). [s]
+Duration = Annotated[float, _duration(0.0, 365 * _DAY, "more than 0 s, at most 365 d", low_open=True)]
+#: A transport delay: zero or more, up to a day. [s]
+DeadTime = Annotated[float, _duration(0.0, _DAY, "0 s to 1 d")]
+#: The analysis grid step: 1 s to 1 d (finer steps cost memory without adding information at the
+#: historian's resolution; coarser ones hide the dynamics of a CSTR). [s]
+GridStep = Annotated[float, _duration(1.0, _DAY, "1 s to 1 d")]
 Density = Annotated[float, _q("density")]
 
 
@@ -104,11 +123,24 @@ class Store(_Strict):
     url: str | None = None
     url_env: str | None = None
 
+    @field_validator("url")
+    @classmethod
+    def _no_password_in_file(cls, v):
+        """A config file is read, copied and versioned by many people: a password stays out of it."""
+        from ..redact import redact_url, url_password
+
+        if v is not None and url_password(v):
+            raise ValueError(
+                f"holds a password ({redact_url(v)}); a configuration file must not: remove store.url and put "
+                f"the URL in the environment instead, e.g. export KINETRACE_STORE_URL='{redact_url(v)}' with the "
+                "real password in place of ***, or name your own variable with store.url_env")
+        return v
+
 
 class Analysis(_Strict):
     """Settings of the daily check."""
 
-    grid: Duration = 3600.0
+    grid: GridStep = 3600.0
     output_dir: str = "out"
 
 
@@ -184,7 +216,7 @@ class Tag(_Strict):
     sigma: str | None = None
     sampling: Sampling = "continuous"
     max_age: Duration | None = None
-    dead_time: Duration = 0.0
+    dead_time: DeadTime = 0.0
     valid_range: tuple[float, float] | None = None
     description: str = ""
     # --- ingest options (see kinetrace.ingest; all optional) ---

@@ -41,6 +41,7 @@ import sqlalchemy as sa
 
 from ..config.schema import Source
 from ..errors import ConfigError, IngestError, Problem
+from ..redact import scrub
 from .collect import Collector
 from .files import refuse_special_file
 from .sqlite_arrow import RangeReader
@@ -199,9 +200,7 @@ def build_statement(source: Source, tags: list[str], since_ns: int, until_ns: in
 def _explain(exc: Exception, url: sa.URL) -> str:
     orig = getattr(exc, "orig", None) or exc
     text = str(orig).strip().splitlines()[0] if str(orig).strip() else type(orig).__name__
-    if url.password:
-        text = text.replace(str(url.password), "***")
-    return f"{type(orig).__name__}: {text}"
+    return f"{type(orig).__name__}: {scrub(text, url)}"
 
 
 def read_sql_source(source: Source, collector: Collector, tags: list[str], since_ns: int = NAT,

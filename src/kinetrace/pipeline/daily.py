@@ -16,6 +16,7 @@ import pandas as pd
 
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError, KinetraceError
+from ..redact import redact_url
 from ..units import rate_constant_unit
 from .backcalc import back_calculate
 from .feed import analysed_flags, monitoring_feed
@@ -23,6 +24,7 @@ from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
 from .kinetics_step import fit_history, k_ref_band
 from .reconciliation import reconcile_unit
 from .roles import role_frame
+from .usable import VERDICTS, UnitNotCheckable, unit_verdict, verdict_series, verdict_summary
 
 log = logging.getLogger("kinetrace")
 
@@ -71,6 +73,9 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
 
     data = read_unit(cfg, model, config_path=config_path, since=since, until=until)
     roles = role_frame(data.values, data.valid, data.volume, model)
+    verdict = unit_verdict(roles, model)
+    if verdict is not None:
+        raise UnitNotCheckable(verdict, data, roles)
     measured = back_calculate(roles, model, fresh_k_ref=fresh_k_ref)
     rec = reconcile_unit(roles, model, steady=measured["steady"])
     series = back_calculate(rec.roles, model, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
@@ -274,6 +279,10 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
     with store.write_run(window, config_fingerprint=fingerprint) as run:
         for res in results:
             uid = res.model.id
+            if res.summary.get("status") in VERDICTS:   # not checked: the counts of its readings only
+                run.write_quality(uid, res.quality.select_dtypes("number"))
+                run.set_watermark(uid, res.series.index[-1])
+                continue
             frame, units = _series_for_store(res.series)
             run.write_series(uid, frame, units=units)
             q = res.quality.select_dtypes("number")
@@ -368,7 +377,11 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
 
     cfg = load_config(config_path)
     out = (Path(out_dir) if out_dir else resolve_path(config_path, cfg.analysis.output_dir)).resolve()
-    out.mkdir(parents=True, exist_ok=True)
+    try:
+        out.mkdir(parents=True, exist_ok=True)
+    except OSError as exc:
+        raise KinetraceError(f"output folder {out} cannot be created ({exc.strerror or exc}); "
+                             "analysis.output_dir or --out must name a folder") from None
     url = None if store is None else (store_url(cfg, config_path) if store == "config" else store)
     if incremental and url is None:
         raise KinetraceError("an incremental check needs the results store (it keeps the watermarks)")
@@ -392,7 +405,7 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
         else:
             kwargs = dict(since=since)
         try:
-            res = check_unit(cfg, model, config_path=config_path, until=until, **kwargs)
+            res = _check_or_verdict(cfg, model, config_path=config_path, until=until, **kwargs)
         except IngestError as exc:
             if mark is None and not_checked is not None:
                 log.warning("unit %s not checked: %s", model.id, exc)
@@ -417,7 +430,7 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
                 window = (min(r.series.index[0] for r in results), max(r.series.index[-1] for r in results) + grid)
                 run_id = write_results(db, results, window=window,
                                        fingerprint=result_store.fingerprint(Path(config_path).read_bytes()))
-                log.info("results of run %s written to the store %s", run_id, _redact(url))
+                log.info("results of run %s written to the store %s", run_id, redact_url(url))
             else:
                 log.info("no new data for any unit; the store is unchanged")
         finally:
@@ -425,14 +438,23 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
     return results, out
 
 
-def _redact(url: str) -> str:
-    """A URL with its password hidden, for logs."""
-    from sqlalchemy.engine import make_url
+def _check_or_verdict(cfg: PlantConfig, model: UnitModel, **kwargs) -> UnitResult:
+    """:func:`check_unit`, or the result of a unit that is down or has no usable data (no rates, no fit).
 
+    See :mod:`kinetrace.pipeline.usable`; the other units are still checked.
+    """
     try:
-        return make_url(url).render_as_string(hide_password=True)
-    except Exception:  # noqa: BLE001 - a malformed URL is logged as such, never echoed
-        return "<store url>"
+        return check_unit(cfg, model, **kwargs)
+    except UnitNotCheckable as exc:
+        verdict, data, roles = exc.verdict, exc.data, exc.roles
+    log.warning("unit %s: %s", model.id, verdict)
+    index = roles.index
+    if kwargs.get("keep_from") is not None:
+        index = index[index >= kwargs["keep_from"]]
+    result = UnitResult(model, verdict_series(verdict, index), roles, data.quality,
+                        verdict_summary(model, verdict, index))
+    result.data = data
+    return result
 
 
 def _safe(name: str) -> str:

@@ -95,6 +95,13 @@ def estimate_sigma(y, steady, method="pooled_std", min_length=10, names=None) ->
     SigmaEstimate
         ``sigma`` in the unit of ``y``.
 
+    Raises
+    ------
+    ReconciliationError
+        No steady stretch at all (a unit that is down), no finite reading of a variable in
+        the usable stretches, or fewer than two degrees of freedom; the message names the
+        variable.
+
     References
     ----------
     .. [1] von Neumann, J., Kent, R. H., Bellinson, H. R., Hart, B. I. (1941). The mean
@@ -119,6 +126,10 @@ def estimate_sigma(y, steady, method="pooled_std", min_length=10, names=None) ->
     names = list(names) if names is not None else [f"y[{j}]" for j in range(n)]
     ids = _stretch_ids(steady, T)
     n_all = int(ids.max()) + 1 if ids.size and ids.max() >= 0 else 0
+    if n_all == 0:
+        # a unit that is down, or whose readings never settle, has nothing to estimate from
+        raise ReconciliationError(f"cannot estimate sigma of {', '.join(map(repr, names))}: no steady stretch "
+                                  f"in {T} steps")
     counts = np.bincount(ids[ids >= 0], minlength=n_all)
     short = counts < min_length
     ids = np.where((ids >= 0) & ~short[np.maximum(ids, 0)], ids, -1)
@@ -139,6 +150,9 @@ def estimate_sigma(y, steady, method="pooled_std", min_length=10, names=None) ->
             d = int(dv.size)
             sigma[j] = np.sqrt(np.sum(dv**2) / (2 * d)) if d > 0 else np.nan
         dof[j] = d
+        if not ok.any():
+            raise ReconciliationError(f"cannot estimate sigma of {names[j]!r}: no finite reading in steady "
+                                      f"stretches of at least {min_length} steps")
         if d < 2:
             raise ReconciliationError(
                 f"cannot estimate sigma of {names[j]!r}: only {d} degrees of freedom in steady "

@@ -25,7 +25,9 @@ Guarantees
   (status ``running``) first, then every result of the run and the status
   ``complete`` together. A run that raises is rolled back and marked ``failed``; a
   process killed mid-run leaves its run ``running`` without a finish time and the
-  previous results untouched.
+  previous results untouched, and the next run to start marks it ``abandoned`` (each
+  run holds a run lease that the OS releases when its process dies; see
+  :meth:`Store.write_run`). The report shows the last ``complete`` run.
 * **Idempotent windows.** Each run has a half-open window ``[start, end)``. Every
   ``write_*`` call first deletes the unit's rows that belong to the window (rule per
   table below), then inserts, in the same transaction, so re-running a window replaces
@@ -43,7 +45,7 @@ Schema
 table               columns (primary key first)                        rows of a window replaced when
 =================== ================================================== ===================================
 runs                run_id; started, finished, status (running /        never (one row per run)
-                    complete / failed), config_fingerprint,
+                    complete / failed / abandoned), config_fingerprint,
                     window_start, window_end, software_version,
                     message
 series_keys         key_id; unique (unit_id, variable);                 never (dictionary of series)

@@ -10,15 +10,19 @@ from typing import Iterator
 
 import pandas as pd
 from sqlalchemy import Engine, create_engine, event, insert, select, text, update
-from sqlalchemy.exc import ArgumentError, OperationalError
+from sqlalchemy.exc import ArgumentError, DatabaseError
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import NoSuchModuleError
 
+from ..redact import redact_url, scrub
 from . import reader
-from .schema import RESULT_TABLES, SCHEMA_VERSION, StoreError, metadata, runs, store_meta, to_utc
+from .schema import RESULT_TABLES, RUN_STATES, SCHEMA_VERSION, StoreError, metadata, runs, store_meta, to_utc
 from .writer import RunWriter
 
 SUPPORTED_DIALECTS = ("sqlite", "postgresql")
+#: Drivers of each back end the store is written for (the PostgreSQL bulk writer uses psycopg 3's COPY),
+#: and the package that provides each.
+SUPPORTED_DRIVERS = {"sqlite": {"pysqlite": "Python's own sqlite3 module"}, "postgresql": {"psycopg": "psycopg[binary]"}}
 
 
 def fingerprint(source) -> str:
@@ -50,6 +54,8 @@ def fingerprint(source) -> str:
 
 #: Key of the PostgreSQL advisory lock that serialises runs on one database.
 RUN_LOCK_KEY = 0x6B74_0001
+#: Key of the PostgreSQL session advisory lock that is the run lease (see :meth:`Store.write_run`).
+RUN_LEASE_KEY = 0x6B74_0002
 
 
 def _sqlite_connect(dbapi_conn, _record) -> None:
@@ -95,12 +101,25 @@ def open_store(url: str, *, create: bool = True, echo: bool = False, base_dir=No
     True
     """
     if not isinstance(url, str) or not url:
-        raise StoreError(f"store url must be a non-empty string, got {url!r}")
+        raise StoreError(f"store url must be a non-empty string, got {type(url).__name__}")
     if url.startswith("postgresql://"):
         url = "postgresql+psycopg://" + url[len("postgresql://"):]
+    shown = redact_url(url)
     try:
         parsed = make_url(url)
-        if parsed.get_backend_name() == "sqlite" and parsed.database not in (None, "", ":memory:") \
+    except (ArgumentError, ValueError):
+        raise StoreError(f"store url {shown!r} cannot be parsed (expected e.g. sqlite:///out/results.sqlite or "
+                         "postgresql+psycopg://user@host:5432/database)") from None
+    backend, _, driver = parsed.drivername.partition("+")
+    driver = driver or {"sqlite": "pysqlite", "postgresql": "psycopg2"}.get(backend, "")   # SQLAlchemy's defaults
+    if backend not in SUPPORTED_DRIVERS:
+        raise StoreError(f"store url {shown!r}: back end {backend!r} is not supported; use one of "
+                         f"{list(SUPPORTED_DIALECTS)}")
+    if driver not in SUPPORTED_DRIVERS[backend]:
+        raise StoreError(f"store url {shown!r}: driver {driver!r} of {backend} is not supported; use "
+                         + " or ".join(f"{backend}+{d}://..." for d in SUPPORTED_DRIVERS[backend]))
+    try:
+        if backend == "sqlite" and parsed.database not in (None, "", ":memory:") \
                 and not parsed.database.startswith("file:"):
             path = Path(parsed.database)
             if not path.is_absolute() and base_dir is not None:
@@ -108,11 +127,14 @@ def open_store(url: str, *, create: bool = True, echo: bool = False, base_dir=No
             path.parent.mkdir(parents=True, exist_ok=True)
             parsed = parsed.set(database=str(path))
         engine = create_engine(parsed, echo=echo)
-    except (ArgumentError, NoSuchModuleError) as exc:
-        raise StoreError(f"store url {url!r} cannot be used: {exc}") from None
-    if engine.dialect.name not in SUPPORTED_DIALECTS:
-        raise StoreError(f"store url {url!r}: back end {engine.dialect.name!r} is not supported; "
-                         f"use one of {list(SUPPORTED_DIALECTS)}")
+    except (ArgumentError, NoSuchModuleError, TypeError, ValueError) as exc:
+        raise StoreError(f"store url {shown!r} cannot be used: {scrub(exc, url)}") from None
+    except ImportError:
+        raise StoreError(f"store url {shown!r}: its driver {driver!r} is not installed; install it with "
+                         f"pip install '{SUPPORTED_DRIVERS[backend][driver]}'") from None
+    except OSError as exc:
+        raise StoreError(f"store url {shown!r}: the folder of the SQLite file cannot be created "
+                         f"({exc.strerror or exc})") from None
     if engine.dialect.name == "sqlite":
         event.listen(engine, "connect", _sqlite_connect)
         event.listen(engine, "begin", _sqlite_begin)
@@ -121,9 +143,13 @@ def open_store(url: str, *, create: bool = True, echo: bool = False, base_dir=No
         if create:
             store.create()
         store.check_version()
-    except OperationalError as exc:
-        raise StoreError(f"store {engine.url.render_as_string(hide_password=True)}: cannot open: "
-                         f"{exc.orig}") from None
+    except DatabaseError as exc:
+        store.close()
+        detail = scrub(str(exc.orig).strip().splitlines()[0] if str(exc.orig).strip() else type(exc.orig).__name__, url)
+        if backend == "sqlite" and "not a database" in detail:
+            raise StoreError(f"store {shown}: the file {parsed.database} is not a SQLite database "
+                             f"({detail}); point the store at a new or an existing results file") from None
+        raise StoreError(f"store {shown}: cannot open: {detail}") from None
     return store
 
 
@@ -146,7 +172,7 @@ class Store:
         self.engine = engine
 
     def __repr__(self) -> str:
-        return f"Store({self.engine.url.render_as_string(hide_password=True)!r})"
+        return f"Store({redact_url(self.engine.url)!r})"
 
     @property
     def dialect(self) -> str:
@@ -154,7 +180,7 @@ class Store:
         return self.engine.dialect.name
 
     def create(self) -> None:
-        """Create missing tables and record the schema version."""
+        """Create missing tables, record the schema version, and let an older runs table hold 'abandoned'."""
         with self.engine.begin() as conn:
             metadata.create_all(conn, checkfirst=True)
             have = conn.execute(select(store_meta.c.value).where(store_meta.c.key == "schema_version")).scalar()
@@ -162,6 +188,7 @@ class Store:
                 conn.execute(insert(store_meta).values(key="schema_version", value=str(SCHEMA_VERSION)))
             elif have == "1":
                 _upgrade_from_1(conn)
+            _upgrade_run_states(conn)
 
     def check_version(self) -> None:
         """Refuse a store written with another table layout."""
@@ -185,8 +212,13 @@ class Store:
         final status ``complete`` are committed together when the block ends. An
         exception rolls every result back (the previous results stay as they were) and
         marks the run ``failed`` with the error; a process killed in the block leaves
-        the run ``running`` with no finish time, and the results untouched. Runs on
-        one store are serialised (SQLite ``BEGIN IMMEDIATE``; a PostgreSQL
+        the run ``running`` with no finish time, and the results untouched, until the
+        next run on the store starts and marks it ``abandoned``. Each run holds the
+        store's run lease from before its record is written until its final status is
+        committed (a lease bound to the process, not a heartbeat; see
+        :meth:`_run_lease`), so a run that holds the lease knows every other ``running``
+        record is an orphan, and never takes a live run for one. Runs on one store
+        are serialised (the lease; SQLite ``BEGIN IMMEDIATE``; a PostgreSQL
         transaction-level advisory lock), so two runs of the same window never mix:
         the one that commits last wins.
 
@@ -222,11 +254,23 @@ class Store:
         if not isinstance(config_fingerprint, str) or not config_fingerprint:
             raise StoreError("config_fingerprint must be a non-empty string (see kinetrace.store.fingerprint)")
         started = pd.Timestamp.now(tz="UTC") if started is None else to_utc(started, "started")
-        with self.engine.begin() as conn:
-            run_id = conn.execute(insert(runs).values(
-                started=started, status="running", config_fingerprint=config_fingerprint,
-                window_start=start, window_end=end,
-                software_version=software_version or __version__).returning(runs.c.run_id)).scalar_one()
+        with self._run_lease():
+            with self.engine.begin() as conn:
+                # holding the lease, no other run is alive: a 'running' record is an orphan
+                stale = conn.execute(select(runs.c.run_id).where(runs.c.status == "running")).scalars().all()
+                run_id = conn.execute(insert(runs).values(
+                    started=started, status="running", config_fingerprint=config_fingerprint,
+                    window_start=start, window_end=end,
+                    software_version=software_version or __version__).returning(runs.c.run_id)).scalar_one()
+                if stale:
+                    conn.execute(update(runs).where(runs.c.run_id.in_(stale)).values(
+                        status="abandoned", finished=pd.Timestamp.now(tz="UTC"),
+                        message=f"abandoned: its process ended before the run finished (it no longer held the "
+                                f"run lease); found by run {run_id}"))
+            yield from self._write(run_id, start, end)
+
+    def _write(self, run_id: int, start, end):
+        """The body of :meth:`write_run` once its record exists (the caller holds the run lease)."""
         try:
             with self.engine.connect() as conn:
                 conn.execution_options(kinetrace_run=True)
@@ -239,11 +283,49 @@ class Store:
                         status="complete", finished=pd.Timestamp.now(tz="UTC"),
                         message=_summary(writer.rows_written)))
         except BaseException as exc:
-            err_text = "".join(traceback.format_exception_only(type(exc), exc)).strip()
+            err_text = scrub("".join(traceback.format_exception_only(type(exc), exc)).strip(), self.engine.url)
             with self.engine.begin() as conn:
                 conn.execute(update(runs).where(runs.c.run_id == run_id).values(
                     status="failed", finished=pd.Timestamp.now(tz="UTC"), message=err_text[:4000]))
             raise
+
+    @contextmanager
+    def _run_lease(self):
+        """Hold the store's run lease: one run at a time, and released by the OS when its process dies.
+
+        A lease bound to the process, not a heartbeat: on PostgreSQL a session-level advisory lock
+        (the server drops it when the connection closes, which a killed process's kernel does at
+        once; a host that vanishes without closing its socket is noticed after the TCP keepalive
+        time); beside a SQLite file an exclusive ``flock`` on ``<file>.run-lease`` (dropped by the
+        kernel with the process). An in-memory SQLite store lives in one process and needs none;
+        on a system without ``fcntl`` (Windows) the SQLite lease is not taken.
+        """
+        if self.dialect == "postgresql":
+            with self.engine.connect() as conn:
+                conn = conn.execution_options(isolation_level="AUTOCOMMIT")
+                conn.execute(text("SELECT pg_advisory_lock(:k)"), {"k": RUN_LEASE_KEY})
+                try:
+                    yield
+                finally:
+                    try:
+                        conn.execute(text("SELECT pg_advisory_unlock(:k)"), {"k": RUN_LEASE_KEY})
+                    except Exception:  # noqa: BLE001 - a broken connection: closing it drops the lease
+                        conn.invalidate()
+            return
+        database = self.engine.url.database
+        try:
+            import fcntl
+        except ImportError:  # pragma: no cover - not on POSIX
+            fcntl = None
+        if fcntl is None or database in (None, "", ":memory:") or database.startswith("file:"):
+            yield
+            return
+        with open(f"{database}.run-lease", "a+b") as fh:
+            fcntl.flock(fh.fileno(), fcntl.LOCK_EX)
+            try:
+                yield
+            finally:
+                fcntl.flock(fh.fileno(), fcntl.LOCK_UN)
 
     # -- reading --------------------------------------------------------------------------
     def _read(self, fn, *args, **kw):
@@ -297,6 +379,31 @@ class Store:
     def dump(self, tables=RESULT_TABLES) -> dict[str, pd.DataFrame]:
         """Every row of the result tables (by name), ordered by primary key."""
         return {name: self._read(reader.read_table, metadata.tables[name]) for name in tables}
+
+
+def _upgrade_run_states(conn) -> None:
+    """Replace a runs-status constraint written before 'abandoned' existed (same table, looser check).
+
+    PostgreSQL: drop and add the constraint. SQLite cannot alter a CHECK constraint; its table
+    text in ``sqlite_schema`` is edited as SQLite's documentation of ALTER TABLE describes for a
+    change that leaves the stored rows valid ("Making Other Kinds Of Table Schema Changes").
+    """
+    states = "status IN (" + ", ".join(f"'{x}'" for x in RUN_STATES) + ")"
+    if conn.dialect.name == "postgresql":
+        have = conn.execute(text("SELECT pg_get_constraintdef(oid) FROM pg_constraint WHERE conname = 'runs_status' "
+                                 "AND conrelid = 'runs'::regclass")).scalar()
+        if have is not None and "abandoned" not in have:
+            conn.execute(text("ALTER TABLE runs DROP CONSTRAINT runs_status"))
+            conn.execute(text(f"ALTER TABLE runs ADD CONSTRAINT runs_status CHECK ({states})"))
+        return
+    sql = conn.execute(text("SELECT sql FROM sqlite_master WHERE type = 'table' AND name = 'runs'")).scalar()
+    if sql and "abandoned" not in sql:
+        new = sql.replace("'complete', 'failed')", "'complete', 'failed', 'abandoned')")
+        version = conn.exec_driver_sql("PRAGMA schema_version").scalar()
+        conn.exec_driver_sql("PRAGMA writable_schema = ON")
+        conn.execute(text("UPDATE sqlite_master SET sql = :s WHERE type = 'table' AND name = 'runs'"), {"s": new})
+        conn.exec_driver_sql(f"PRAGMA schema_version = {int(version) + 1}")
+        conn.exec_driver_sql("PRAGMA writable_schema = OFF")
 
 
 def _summary(counts: dict[str, int]) -> str:

@@ -42,7 +42,9 @@ from ..errors import KinetraceError
 SCHEMA_VERSION = 2
 
 #: Run states written to ``runs.status``.
-RUN_STATES = ("running", "complete", "failed")
+#: ``abandoned``: a run whose process ended without finishing (killed, host lost), marked so by the
+#: next run that takes the run lease (see :meth:`kinetrace.store.Store.write_run`).
+RUN_STATES = ("running", "complete", "failed", "abandoned")
 
 #: Alarm states written to ``alarms.state``.
 ALARM_STATES = ("open", "closed")
@@ -149,7 +151,7 @@ runs = Table(
     Column("window_end", UtcTime, nullable=False),
     Column("software_version", String(64), nullable=False),
     Column("message", Text),
-    CheckConstraint("status IN ('running', 'complete', 'failed')", name="runs_status"),
+    CheckConstraint("status IN (" + ", ".join(f"'{x}'" for x in RUN_STATES) + ")", name="runs_status"),
 )
 
 series_keys = Table(
