@@ -1,4 +1,4 @@
-"""Command line: ``kinetrace demo`` and ``kinetrace check``.
+"""Command line: ``kinetrace demo``, ``kinetrace check`` and ``kinetrace backfill``.
 
 On a terminal, long runs show a progress bar; when not attached to one (cron, CI)
 they write plain log lines instead.
@@ -337,6 +337,32 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
         for r in reasons:
             typer.echo(f"  - {r}")
         raise typer.Exit(EXIT_ATTENTION)
+
+
+@app.command()
+def backfill(config: Path = typer.Option(..., "--config", "-c", help="Plant configuration TOML file."),
+             since: str = typer.Option(None, help="Start of the period to re-derive (ISO 8601, on the grid)."),
+             until: str = typer.Option(None, help="End of the period (exclusive)."),
+             chunk: str = typer.Option("30D", help="Length of a time chunk (pandas span, e.g. 30D)."),
+             workers: int = typer.Option(2, help="Local worker processes (ignored with --scheduler)."),
+             scheduler: str = typer.Option(None, help="Scheduler address of an existing Dask cluster."),
+             parquet: Path = typer.Option(None, help="Also write Parquet, partitioned by unit and month."),
+             unit: list[str] = typer.Option(None, "--unit", help="Only this unit (repeatable)."),
+             memory_limit: str = typer.Option("2GiB", help="Memory limit per local worker.")):
+    """Re-derive a long period for every unit on Dask (units x time chunks); exit 1 if a unit failed."""
+    from .fleet.command import backfill_command
+
+    _setup_logging()
+    try:
+        since, until = iso_window(since, until)
+        code = backfill_command(config, since=since, until=until, chunk=chunk, workers=workers, scheduler=scheduler,
+                                parquet=parquet, units=unit, memory_limit=memory_limit, echo=typer.echo)
+    except KinetraceError as exc:
+        typer.echo(f"kinetrace: {exc}", err=True)
+        raise typer.Exit(EXIT_ERROR) from None
+    except Exception:  # noqa: BLE001 - no traceback reaches the user
+        raise _internal_error("running the backfill", config, None) from None
+    raise typer.Exit(code)
 
 
 @app.command()

@@ -137,6 +137,13 @@ class Store(_Strict):
         return v
 
 
+class Fleet(_Strict):
+    """Where a backfill runs (``kinetrace backfill``): an existing Dask scheduler, or none (local)."""
+
+    scheduler: str | None = None
+    scheduler_env: str | None = None
+
+
 class Analysis(_Strict):
     """Settings of the daily check."""
 
@@ -318,4 +325,5 @@ class PlantConfig(_Strict):
     source: Source
     store: Store = Store()
     analysis: Analysis = Analysis()
+    fleet: Fleet = Fleet()
     units: list[Unit] = Field(min_length=1)

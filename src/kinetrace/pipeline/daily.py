@@ -77,6 +77,35 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     if verdict is not None:
         raise UnitNotCheckable(verdict, data, roles)
     measured = back_calculate(roles, model, fresh_k_ref=fresh_k_ref)
+    result = finish_unit(cfg, model, roles, measured, data.quality, history=history,
+                         fresh_k_ref=fresh_k_ref, keep_from=keep_from)
+    if result.calibration is not None:
+        result.data = data
+    return result
+
+
+def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measured: pd.DataFrame,
+                quality: pd.DataFrame, *, history: pd.DataFrame | None = None,
+                fresh_k_ref: dict | None = None, keep_from=None) -> UnitResult:
+    """The check of one unit after ingest: reconciliation, calibration, re-derivation, monitoring.
+
+    :func:`check_unit` calls it on the rows it read; a backfill calls it once per unit on the
+    role frames of its time chunks put end to end (:mod:`kinetrace.fleet`).
+
+    Parameters
+    ----------
+    cfg, model
+        The plant configuration and the unit.
+    roles : DataFrame
+        Role frame of the unit on the grid (:func:`kinetrace.pipeline.roles.role_frame`). [SI]
+    measured : DataFrame
+        Back-calculation of ``roles`` (:func:`kinetrace.pipeline.backcalc.back_calculate`); its
+        ``steady`` column is the steady-state mask used throughout. [SI]
+    quality : DataFrame
+        Per-tag data-quality summary of the readings. [counts]
+    history, fresh_k_ref, keep_from
+        As for :func:`check_unit`.
+    """
     rec = reconcile_unit(roles, model, steady=measured["steady"])
     series = back_calculate(rec.roles, model, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
     series = series.join(rec.frame)
@@ -111,10 +140,9 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     if keep_from is not None:
         series = series.loc[series.index >= keep_from]
         if series.empty:
-            return UnitResult(used, series, roles, data.quality, {}, faults=[])
+            return UnitResult(used, series, roles, quality, {}, faults=[])
     series.attrs.update(attrs)
-    result = UnitResult(used, series, roles, data.quality, {}, faults=rec.faults)
-    result.data = data
+    result = UnitResult(used, series, roles, quality, {}, faults=rec.faults)
     result.sigma_source = rec.sigma_source
     result.calibration = outcome
     full = series
@@ -278,54 +306,85 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
     """
     with store.write_run(window, config_fingerprint=fingerprint) as run:
         for res in results:
-            uid = res.model.id
             if res.summary.get("status") in VERDICTS:   # not checked: the counts of its readings only
-                run.write_quality(uid, res.quality.select_dtypes("number"))
-                run.set_watermark(uid, res.series.index[-1])
+                run.write_quality(res.model.id, res.quality.select_dtypes("number"))
+                run.set_watermark(res.model.id, res.series.index[-1])
                 continue
-            frame, units = _series_for_store(res.series)
-            run.write_series(uid, frame, units=units)
-            q = res.quality.select_dtypes("number")
-            run.write_quality(uid, q)
-            fresh = res.series.attrs.get("fresh_k_ref", {})
-            basis = res.series.attrs.get("fresh_basis", {})
-            if fresh:
-                run.write_parameters(uid, pd.DataFrame([
-                    {"name": f"k_ref_fresh:{rid}", "value": v, "unit_of_measure": _k_unit(res.model, rid),
-                     "method": basis.get(rid, "")} for rid, v in fresh.items()]))
-            if res.faults:
-                run.write_alarms(uid, pd.DataFrame([{
-                    "kind": "balance_mismatch" if f.ambiguous else "sensor_bias", "variable": ", ".join(f.tags) or f.role, "onset": f.onset,
-                    "detected": f.alarm, "magnitude": 100 * f.relative, "magnitude_unit": "%",
-                    "evidence": f.evidence(), "state": "open" if f.end >= res.series.index[-1] - pd.Timedelta("2h") else "closed",
-                    "closed": None if f.end >= res.series.index[-1] - pd.Timedelta("2h") else f.end}
-                    for f in res.faults]))
-            a = res.assessment
-            if a is not None:
-                daily = a.daily_rows()
-                # production days are local (site time zone); the store keys them by date inside
-                # the run window, so a local day that begins before the window ends but is
-                # labelled with a later date (the last hours of the data) waits for the next run
-                last_day = (window[1] - pd.Timedelta(microseconds=1)).date()
-                first_day = window[0].date()
-                daily = daily[[first_day <= d <= last_day for d in daily.index]]
-                if len(daily):
-                    run.write_daily(uid, daily)
-                params = pd.concat([a.parameter_rows(), res.kinetic_parameters], ignore_index=True) \
-                    if len(res.kinetic_parameters) else a.parameter_rows()
-                if len(params):
-                    run.write_parameters(uid, params)
-                alarms = a.alarm_rows()
-                if len(alarms):
-                    run.write_alarms(uid, alarms)
-                fc = a.forecast_row()
-                if fc is not None:
-                    run.write_forecast(uid, **fc)
-                wi = a.whatif_rows()
-                if len(wi):
-                    run.write_whatif(uid, wi)
-            run.set_watermark(uid, res.series.index[-1])
+            write_unit_rows(run, res)
+            write_unit_findings(run, res, window)
         return run.run_id
+
+
+def write_unit_rows(run, res: UnitResult, *, period=None) -> None:
+    """Write a unit's time series and data-quality counts into an open run (``period``: of the counts).
+
+    Parameters
+    ----------
+    run : kinetrace.store.RunWriter
+    res : UnitResult
+        Its ``series`` rows must lie in the run's window. [SI]
+    period : (Timestamp, Timestamp), optional
+        Period the quality counts cover; default the run window. [UTC]
+    """
+    uid = res.model.id
+    frame, units = _series_for_store(res.series)
+    run.write_series(uid, frame, units=units)
+    q = res.quality.select_dtypes("number")
+    if period is None:
+        run.write_quality(uid, q)
+    else:
+        run.write_quality(uid, q, period_start=period[0], period_end=period[1])
+
+
+def write_unit_findings(run, res: UnitResult, window) -> None:
+    """Write a unit's parameters, alarms, daily production, forecast and what-if, and its watermark.
+
+    Parameters
+    ----------
+    run : kinetrace.store.RunWriter
+    res : UnitResult
+    window : (Timestamp, Timestamp)
+        The run window; daily rows are kept for the local days inside it. [UTC]
+    """
+    uid = res.model.id
+    fresh = res.series.attrs.get("fresh_k_ref", {})
+    basis = res.series.attrs.get("fresh_basis", {})
+    if fresh:
+        run.write_parameters(uid, pd.DataFrame([
+            {"name": f"k_ref_fresh:{rid}", "value": v, "unit_of_measure": _k_unit(res.model, rid),
+             "method": basis.get(rid, "")} for rid, v in fresh.items()]))
+    if res.faults:
+        run.write_alarms(uid, pd.DataFrame([{
+            "kind": "balance_mismatch" if f.ambiguous else "sensor_bias", "variable": ", ".join(f.tags) or f.role, "onset": f.onset,
+            "detected": f.alarm, "magnitude": 100 * f.relative, "magnitude_unit": "%",
+            "evidence": f.evidence(), "state": "open" if f.end >= res.series.index[-1] - pd.Timedelta("2h") else "closed",
+            "closed": None if f.end >= res.series.index[-1] - pd.Timedelta("2h") else f.end}
+            for f in res.faults]))
+    a = res.assessment
+    if a is not None:
+        daily = a.daily_rows()
+        # production days are local (site time zone); the store keys them by date inside
+        # the run window, so a local day that begins before the window ends but is
+        # labelled with a later date (the last hours of the data) waits for the next run
+        last_day = (window[1] - pd.Timedelta(microseconds=1)).date()
+        first_day = window[0].date()
+        daily = daily[[first_day <= d <= last_day for d in daily.index]]
+        if len(daily):
+            run.write_daily(uid, daily)
+        params = pd.concat([a.parameter_rows(), res.kinetic_parameters], ignore_index=True) \
+            if len(res.kinetic_parameters) else a.parameter_rows()
+        if len(params):
+            run.write_parameters(uid, params)
+        alarms = a.alarm_rows()
+        if len(alarms):
+            run.write_alarms(uid, alarms)
+        fc = a.forecast_row()
+        if fc is not None:
+            run.write_forecast(uid, **fc)
+        wi = a.whatif_rows()
+        if len(wi):
+            run.write_whatif(uid, wi)
+    run.set_watermark(uid, res.series.index[-1])
 
 
 #: Readings before the watermark re-read as context on an incremental run (steady-state test,
