@@ -270,7 +270,11 @@ def _write_report(config: Path, day=None, out: Path | None = None):
     cfg, store = _open_store(config)
     try:
         folder = Path(out) if out else resolve_path(config, cfg.analysis.output_dir) / "reports"
-        return build_report(store, folder.resolve(), day, tz=cfg.site.timezone, site=cfg.site.name)
+        from .config import unit_model
+
+        shown = {u.id: unit_model(u).display_units for u in cfg.units}
+        return build_report(store, folder.resolve(), day, tz=cfg.site.timezone, site=cfg.site.name,
+                            display_units=shown)
     finally:
         store.close()
 

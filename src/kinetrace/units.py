@@ -186,7 +186,7 @@ DISPLAY_UNITS = {"K": ("degC", "temperature", ".1f"), "m3/s": ("m3/h", "volumetr
                  "s": ("h", "time", ".3g"), "mol/s": ("kmol/h", "molar_flow", ".4g")}
 
 
-def display(value, unit: str) -> str:
+def display(value, unit: str, to: str | None = None) -> str:
     """A value in SI written in its display unit, for messages and reports.
 
     Parameters
@@ -196,6 +196,9 @@ def display(value, unit: str) -> str:
     unit : str
         Its SI unit as stored (``"K"``, ``"m3/s"``, ``"s"``, ``"mol/s"``); any other unit is
         written as it is.
+    to : str, optional
+        Display unit to use instead of the default one (e.g. the unit's own instrument unit,
+        ``"gpm"``, ``"degF"``); converted with pint.
 
     Returns
     -------
@@ -206,10 +209,17 @@ def display(value, unit: str) -> str:
     ('70.0 degC', '5.4 m3/h', '1 h')
     >>> display(0.25, "-")
     '0.25 -'
+    >>> display(1.5e-3, "m3/s", "gpm"), display(343.15, "K", "degF")
+    ('23.8 gpm', '158.0 degF')
     """
     if unit not in DISPLAY_UNITS or value is None or not np.isfinite(value):
         return f"{value:.4g} {unit}"
     disp, kind, spec = DISPLAY_UNITS[unit]
+    if to and to != disp:
+        try:
+            return f"{format(float(convert(value, unit, to)), spec)} {to}"
+        except UnitError:
+            pass
     return f"{format(float(from_si(value, disp, kind)), spec)} {disp}"
 
 

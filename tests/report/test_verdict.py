@@ -95,3 +95,36 @@ def test_data_ending_one_hour_into_a_day(tmp_path):
     assert out.startswith("Verdict (latest complete day): - K-41 on target for")
     assert "So far today:" in out and "in 1 h against" in out and "pro rata" in out
     assert "below target on 18 Jun" not in out
+
+
+@pytest.mark.slow
+def test_whatif_in_the_units_of_the_units_instruments(tmp_path):
+    """K-41 reads its flows in L/min and its temperature in degF: its what-if says so, in the check's
+    output and in the report (values checked against pint, an independent converter)."""
+    import re
+
+    import pint
+
+    truth, readings = plants.saturating_plant(1)
+    csv = plants.write_export(readings, tmp_path / "export.csv")
+    target, _ = plants.target_for_crossing("saturating", truth, -20.0, 0.1)     # already below: proposals
+    cfg = plants.write_config("saturating", tmp_path, csv, start=TRUE["saturating"],
+                              target=f"{target / 1000:.6f} t/d", change_day=truth.change_day)
+    res = CliRunner().invoke(app, ["check", "--config", str(cfg), "--out", str(tmp_path / "out")])
+    out = " ".join(res.output.split())
+    assert res.exit_code == 1, res.output
+    whatif = out[out.index("what-if within the configured safe limits"):]
+    assert "degF" in whatif and "L/min" in whatif and "m3/h" not in whatif and "degC" not in whatif
+    # the temperature now, in degF, equals the stored SI value converted by pint
+    from kinetrace.store import open_store
+
+    store = open_store(f"sqlite:///{tmp_path / 'out' / 'results.sqlite'}")
+    w = store.whatif("K-41").set_index("lever")
+    store.close()
+    now_f = pint.UnitRegistry().Quantity(w.loc["temperature", "current_value"], "kelvin").to("degF").magnitude
+    assert f"(now {now_f:.1f} degF)" in whatif or f"({now_f:.1f} degF)" in whatif
+    rep = CliRunner().invoke(app, ["report", "--config", str(cfg)])
+    assert rep.exit_code == 0, rep.output
+    html = next((tmp_path / "out" / "reports").glob("*.html")).read_text(encoding="utf-8")
+    part = html[html.index("What-if within the safe limits"):]
+    assert re.search(r"\d degF", part) and re.search(r"\d L/min", part) and " m3/h" not in part

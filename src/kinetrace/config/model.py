@@ -84,6 +84,11 @@ class UnitModel:
             return tuple(self.catalysed)
         return tuple(r for r in self.reaction_ids if r in self.rate_laws)
 
+    @property
+    def display_units(self) -> dict[str, str]:
+        """SI unit -> the unit's own instrument unit for operator outputs (see :func:`instrument_units`)."""
+        return instrument_units(self.tags)
+
 
 def tag_sigma(tag: Tag, kind: str) -> tuple[float, float]:
     """Measurement uncertainty of a tag as (relative [-], absolute [SI]); one of them is zero."""
@@ -143,6 +148,33 @@ def level_table_si(unit: Unit, levels) -> np.ndarray:
     if tag is None or tag.unit.strip() in ("%", "percent"):
         return levels / 100.0
     return np.asarray(to_si(levels, tag.unit, "length"), dtype=float)
+
+
+def instrument_units(tags) -> dict[str, str]:
+    """Display unit of each SI unit for operator outputs: the unit's own instrument units (its feed
+    flowmeter's volume-flow unit, its temperature transmitter's unit), where they are of that kind.
+
+    >>> from types import SimpleNamespace as T
+    >>> instrument_units([T(role="feed_flow", unit="gpm"), T(role="temperature", unit="degF")])
+    {'m3/s': 'gpm', 'K': 'degF'}
+    """
+    from ..units import kind_of
+
+    out: dict[str, str] = {}
+    for t in tags:
+        unit = str(getattr(t, "unit", "")).strip()
+        if t.role == "feed_flow" and "m3/s" not in out and _kind(unit, kind_of) == "volumetric_flow":
+            out["m3/s"] = unit
+        elif t.role == "temperature" and "K" not in out and _kind(unit, kind_of) == "temperature":
+            out["K"] = unit
+    return out
+
+
+def _kind(unit: str, kind_of) -> str | None:
+    try:
+        return kind_of(unit)
+    except Exception:  # noqa: BLE001 - a unit pint cannot read has no display use
+        return None
 
 
 def unit_model(unit: Unit) -> UnitModel:

@@ -231,14 +231,16 @@ def _search(prod, lo: float, hi: float, target: float, n_grid: int = 129):
     return x, float(prod(np.array([x]))[0])
 
 
-def _message(lever: str, feasible: bool, setting, current, limits, unit, production, target, already, extra=""):
+def _message(lever: str, feasible: bool, setting, current, limits, unit, production, target, already, extra="",
+             show: dict | None = None):
     name = _LEVERS[lever][1]
-    rng = f"{display(limits[0], unit)} to {display(limits[1], unit)}"
+    to = (show or {}).get(unit)
+    rng = f"{display(limits[0], unit, to)} to {display(limits[1], unit, to)}"
     if already:
-        return (f"The unit meets its target at the present {name} ({display(current, unit)}); no change is needed. "
-                + extra).strip()
+        return (f"The unit meets its target at the present {name} ({display(current, unit, to)}); no change is "
+                "needed. " + extra).strip()
     if feasible:
-        return (f"At today's activity, a {name} of about {display(setting, unit)} (now {display(current, unit)}) would "
+        return (f"At today's activity, a {name} of about {display(setting, unit, to)} (now {display(current, unit, to)}) would "
                 f"restore the target, predicted {display(production, 'mol/s')} against {display(target, 'mol/s')}; "
                 f"this is inside the configured safe range {rng}. " + extra).strip()
     return (f"No {name} inside the configured safe range {rng} restores the target at today's activity: the most "
@@ -246,7 +248,7 @@ def _message(lever: str, feasible: bool, setting, current, limits, unit, product
             + extra).strip()
 
 
-def _lever_result(rx: UnitReactions, lever, *, activity, feed_flow, temperature, volume, target, limits):
+def _lever_result(rx: UnitReactions, lever, *, activity, feed_flow, temperature, volume, target, limits, show=None):
     if lever == "temperature":
         current = temperature
         prod = lambda x: rx.production(activity, feed_flow, x, volume)  # noqa: E731
@@ -273,7 +275,7 @@ def _lever_result(rx: UnitReactions, lever, *, activity, feed_flow, temperature,
     feasible = setting is not None
     if feasible and not lo <= setting <= hi:  # the search cannot leave the range; refuse if it ever did
         raise KinetraceError(f"internal error: {lever} setting {setting} outside the safe range {limits}")
-    msg = _message(lever, feasible, setting, float(current), (lo, hi), unit, p, target, already, extra)
+    msg = _message(lever, feasible, setting, float(current), (lo, hi), unit, p, target, already, extra, show)
     vol = None if lever != "residence_time" or setting is None else float(setting * feed_flow)
     return WhatIf(lever, feasible, setting, unit, float(current), (lo, hi), p, float(target), msg, vol)
 
@@ -361,5 +363,5 @@ def what_if(
                 continue
             v_lo, v_hi = _check_limits(volume_limits, f"unit {model.id} volume_limits")
             limits = (v_lo / feed_flow, v_hi / feed_flow)
-        out.append(_lever_result(rx, lever, limits=limits, **kw))
+        out.append(_lever_result(rx, lever, limits=limits, show=model.display_units, **kw))
     return out

@@ -55,7 +55,7 @@ class ReportFiles:
 
 
 def build_report(store: Store, out_dir, day=None, *, tz: str = "UTC", site: str = "",
-                 units=None) -> ReportFiles:
+                 units=None, display_units: dict | None = None) -> ReportFiles:
     """Write the HTML page and the XLSX workbook of one production day.
 
     Parameters
@@ -72,12 +72,17 @@ def build_report(store: Store, out_dir, day=None, *, tz: str = "UTC", site: str 
         Site name shown in the heading.
     units : list of str, optional
         Units to report; default all.
+    display_units : dict, optional
+        Unit id -> {SI unit: display unit}, e.g. ``{"R-220": {"m3/s": "gpm", "K": "degF"}}``: the
+        unit's own instrument units for its what-if settings (see
+        :attr:`kinetrace.config.UnitModel.display_units`).
 
     Returns
     -------
     ReportFiles
     """
     content = collect(store, day, tz=tz, site=site, units=units)
+    content.display_units = dict(display_units or {})
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)
     stem = f"kinetrace-day-{content.day.isoformat()}"

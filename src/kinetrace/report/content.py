@@ -100,6 +100,7 @@ class ReportContent:
     units: list[UnitReport]
     generated: pd.Timestamp
     last_run: dict | None
+    display_units: dict = field(default_factory=dict)   # unit id -> {SI unit: the unit's instrument unit}
 
 
 DAY_FIGURES = ("production_kg", "target_kg", "gap_kg", *GAP_PARTS, "hours_with_data")

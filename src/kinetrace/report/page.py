@@ -13,6 +13,7 @@ from html import escape
 import pandas as pd
 
 from .content import Figure, ReportContent, UnitReport, iso
+from ..units import display
 from .svg import COLOURS, production_bars, trend_line
 from .wording import CAUTIONS, alarm_sentence, gap_sentence, number, quality_word, sig, when, whatif_sentence
 
@@ -165,7 +166,7 @@ def _parameter_block(u: UnitReport) -> str:
             f"<th>How it was determined</th></tr>{''.join(rows)}</table>")
 
 
-def _outlook_block(u: UnitReport) -> str:
+def _outlook_block(u: UnitReport, units: dict | None = None) -> str:
     out = []
     if u.forecast is not None:
         f = u.forecast
@@ -178,9 +179,15 @@ def _outlook_block(u: UnitReport) -> str:
         lines = []
         for _, r in u.whatif.iterrows():
             src = f"whatif|{u.unit}|{iso(r['as_of'])}|{r['lever']}|proposed_value"
-            shown = "" if pd.isna(r["proposed_value"]) else \
-                f" Proposed: {fig(Figure(float(r['proposed_value']), src, r['unit_of_measure']), digits=5)}."
-            lines.append(f"<li>{escape(whatif_sentence(r))}{shown}"
+            shown = ""
+            if not pd.isna(r["proposed_value"]) and r["proposed_value"] != r["current_value"]:
+                # in the unit's display unit; the stored SI value stays in data-value
+                text = display(float(r["proposed_value"]), r["unit_of_measure"], (units or {}).get(r["unit_of_measure"]))
+                si, to = r["unit_of_measure"], text.split(" ", 1)[1]
+                conv = f' data-si-unit="{escape(si)}" data-unit="{escape(to)}"' if to != si else ""
+                shown = (f' Proposed: <span class="num" data-src="{escape(src)}" data-value='
+                         f'"{escape(repr(float(r["proposed_value"])))}"{conv} title="{escape(src)}">{escape(text)}</span>.')
+            lines.append(f"<li>{escape(whatif_sentence(r, units))}{shown}"
                          + (f"<div class='evidence'>{escape(r['note'])}</div>" if r["note"] else "") + "</li>")
         out.append(f"<h3>What-if within the safe limits</h3><div class='caution'>{escape(CAUTIONS)}</div>"
                    f"<ul>{''.join(lines)}</ul>")
@@ -209,7 +216,7 @@ def _unit_section(u: UnitReport, content: ReportContent) -> str:
             f"<div class='sub'>Data processed up to {escape(mark)}{escape(note)}</div>"
             + (f"<p class='verdict'>{escape(u.verdict.sentence)}</p>" if u.verdict is not None else "") +
             f"{_charts(u)}{_production_block(u, content)}{_alarm_block(u, content)}{_quality_block(u)}"
-            f"{_outlook_block(u)}{_parameter_block(u)}</section>")
+            f"{_outlook_block(u, content.display_units.get(u.unit))}{_parameter_block(u)}</section>")
 
 
 def render_html(content: ReportContent) -> str:

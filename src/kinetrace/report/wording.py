@@ -72,7 +72,7 @@ def alarm_sentence(row) -> str:
     return f"{kind} on {row['variable']}{onset}, detected {when(row['detected'])}; {state}."
 
 
-def whatif_sentence(row) -> str:
+def whatif_sentence(row, units: dict | None = None) -> str:
     """One what-if lever in plain words, within its safe limits, in display units (the
     workbook keeps the stored SI values).
 
@@ -80,13 +80,22 @@ def whatif_sentence(row) -> str:
     ...                  "safe_high": 348.15, "restores_target": True, "current_value": 335.15,
     ...                  "proposed_value": 339.65})
     'Estimated to restore the target: temperature from 62.0 degC to 66.5 degC (safe limits 50.0 degC to 75.0 degC).'
+
+    In the unit's own instrument units:
+
+    >>> whatif_sentence({"lever": "feed_flow", "unit_of_measure": "m3/s", "safe_low": 1e-3, "safe_high": 2e-3,
+    ...                  "restores_target": True, "current_value": 1.5e-3, "proposed_value": 1.5e-3}, {"m3/s": "gpm"})
+    'On target at the present feed rate (23.8 gpm; safe limits 15.9 gpm to 31.7 gpm): no change needed.'
     """
     lever = LEVER_WORDS.get(row["lever"], row["lever"].replace("_", " "))
     u = row["unit_of_measure"]
-    limits = f"safe limits {display(row['safe_low'], u)} to {display(row['safe_high'], u)}"
+    to = (units or {}).get(u)
+    limits = f"safe limits {display(row['safe_low'], u, to)} to {display(row['safe_high'], u, to)}"
     if row["restores_target"]:
-        return (f"Estimated to restore the target: {lever} from {display(row['current_value'], u)} to "
-                f"{display(row['proposed_value'], u)} ({limits}).")
+        if row["proposed_value"] == row["current_value"]:
+            return f"On target at the present {lever} ({display(row['current_value'], u, to)}; {limits}): no change needed."
+        return (f"Estimated to restore the target: {lever} from {display(row['current_value'], u, to)} to "
+                f"{display(row['proposed_value'], u, to)} ({limits}).")
     return f"No {lever} within the {limits} is estimated to meet the target."
 
 
