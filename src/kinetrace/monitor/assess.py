@@ -121,7 +121,7 @@ class UnitAssessment:
             rows.append({"lever": w.lever, "current_value": w.current,
                          "proposed_value": np.nan if w.setting is None else w.setting,
                          "safe_low": w.limits[0], "safe_high": w.limits[1], "unit_of_measure": w.unit,
-                         "restores_target": bool(w.feasible), "note": f"{w.message} {w.cautions}"})
+                         "restores_target": bool(w.feasible), "note": w.message})   # cautions shown once, by the outputs
         return pd.DataFrame(rows, columns=["lever", "current_value", "proposed_value", "safe_low", "safe_high",
                                            "unit_of_measure", "restores_target", "note"])
 
