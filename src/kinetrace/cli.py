@@ -308,8 +308,8 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
                                            help="Only what is new since each unit's watermark in the store.")):
     """Back-calculate, reconcile and assess every unit; exit 1 when a unit needs attention.
 
-    Exit status: 0 every unit on target and no open alarm; 1 a unit below target, without
-    data, or with an open alarm (the reasons are printed); 2 the check could not run because of
+    Exit status: 0 every unit on target and no open alarm; 1 a unit below target, down, without
+    usable data, or with an open alarm (the reasons are printed); 2 the check could not run because of
     its inputs (config, data, store, arguments); 3 an internal error (one line says where its
     report was written).
     Safe to run from cron every hour: each run replaces the results of its window.
