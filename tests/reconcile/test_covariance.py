@@ -125,6 +125,20 @@ def test_named_correlation_batched_and_missing(rng):
     assert r.missing_counts == {"F3": 1}
 
 
+def test_blocks_of_steps_equal_one_block(rng, monkeypatch):
+    from kinetrace.reconcile import _correlated
+
+    names = [f"F{j}" for j in range(1, 7)]
+    corr = {("F2", "F4"): 0.7, ("F3", "F5"): -0.3}
+    y = NJ_Y + rng.normal(size=(50, 6))
+    y[7, 1] = np.nan
+    whole = reconcile_linear(y, 1.0, NJ_A, names=names, correlation=corr)
+    monkeypatch.setattr(_correlated, "BLOCK", 8)
+    blocks = reconcile_linear(y, 1.0, NJ_A, names=names, correlation=corr)
+    for key in ("x", "var_x", "var_adjustment", "objective", "dof", "redundant"):
+        assert np.allclose(getattr(blocks, key), getattr(whole, key), rtol=1e-12, atol=1e-12, equal_nan=True)
+
+
 def test_correlated_cstr_against_slsqp():
     # A -> B, both outlet concentrations from one analyzer with correlated errors (invented R-7);
     # reference: scipy SLSQP on the nonlinear problem min (y-x)' V^-1 (y-x) s.t. the balances.

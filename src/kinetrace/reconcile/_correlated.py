@@ -26,12 +26,31 @@ from ._kernel import wls_kernel
 REDUNDANT_TOL = 1e-9
 
 
+#: Steps whitened together (bounds the (n, n, k) temporaries of the covariance mapping).
+BLOCK = 4096
+
+
 def correlated_kernel(y, sd, R, A, Az=None, b=None, full_cov=False, minimal=False):
     """:func:`._kernel.wls_kernel` for correlated errors (same arguments and results, time last).
 
     ``y`` and ``sd`` (n, k) are the measurements and their standard deviations (> 0),
     ``R`` (n, n) their correlation matrix (positive definite). [units of y]
+    Solved in blocks of :data:`BLOCK` steps (a loop over blocks, not over steps).
     """
+    k = y.shape[1]
+    if k <= BLOCK:
+        return _whitened(y, sd, R, A, Az, b, full_cov, minimal)
+
+    def part(a, sl):
+        return a if a is None or a.shape[-1] == 1 else a[..., sl]
+
+    parts = [_whitened(y[:, sl], sd[:, sl], R, part(A, sl), part(Az, sl), part(b, sl), full_cov, minimal)
+             for sl in (slice(i, i + BLOCK) for i in range(0, k, BLOCK))]
+    return {key: np.concatenate([p[key] for p in parts], axis=-1) for key in parts[0]}
+
+
+def _whitened(y, sd, R, A, Az, b, full_cov, minimal):
+    """One block of :func:`correlated_kernel`."""
     C = np.linalg.cholesky(R)
     u = solve_triangular(C, y / sd, lower=True)
     AG = np.einsum("mjk,ji->mik", A * sd[None], C)  # A D_t C, (m, n, k)
