@@ -15,15 +15,15 @@ from kinetrace.pipeline.daily import check_unit  # noqa: E402
 from kinetrace.simulator import generate_sample_historian  # noqa: E402
 from tests.pipeline.demo import demo_config  # noqa: E402
 
-#: The period of the tests: ten days of the demo scenario at 1-minute readings, hourly grid.
-SINCE, UNTIL = pd.Timestamp("2026-09-01T00:00Z"), pd.Timestamp("2026-09-11T00:00Z")
+#: The period of the tests: six days of the demo scenario at 1-minute readings, hourly grid.
+SINCE, UNTIL = pd.Timestamp("2026-09-01T00:00Z"), pd.Timestamp("2026-09-07T00:00Z")
 
 
 @pytest.fixture(scope="session")
 def fleet_plant(tmp_path_factory):
-    """(folder, config path) of the demo plant (two units) over a simulated ten-day historian."""
+    """(folder, config path) of the demo plant (two units) over a simulated six-day historian."""
     tmp = tmp_path_factory.mktemp("fleet")
-    paths = generate_sample_historian(_ROOT / "config" / "demo_plant.toml", tmp / "hist", days=10, seed=5)
+    paths = generate_sample_historian(_ROOT / "config" / "demo_plant.toml", tmp / "hist", days=6, seed=5)
     return tmp, demo_config(tmp, paths["sqlite"], store_url=f"sqlite:///{tmp / 'unused.sqlite'}")
 
 

@@ -39,7 +39,7 @@ def backfilled(fleet_plant, dask_client):
     tmp, cfg = fleet_plant
     url = f"sqlite:///{tmp / 'backfill.sqlite'}"
     out = io.StringIO()
-    outcome = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="3D", client=dask_client, store=url,
+    outcome = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="2D", client=dask_client, store=url,
                            parquet=tmp / "parquet", cache_dir=tmp / "cache", progress_stream=out,
                            progress_every=0.0, keep_results=True)
     return tmp, cfg, url, outcome, out.getvalue()
@@ -48,7 +48,7 @@ def backfilled(fleet_plant, dask_client):
 def test_chunks_stitch_to_one_whole_run(backfilled, whole_run):
     _, _, _, outcome, progress = backfilled
     assert outcome.ok and sorted(outcome.units_done) == sorted(whole_run)
-    assert outcome.chunks_run == 2 * 4                       # 10 days in 3-day chunks: 3 + 3 + 3 + 1
+    assert outcome.chunks_run == 2 * 3                       # 6 days in 2-day chunks
     for uid, ref in whole_run.items():
         got = outcome.results[uid]
         assert_same_series(got.series, ref.series, uid)
@@ -58,7 +58,7 @@ def test_chunks_stitch_to_one_whole_run(backfilled, whole_run):
         # grid intervals are counted once per chunk, so their sums equal the whole read's
         cols = ["intervals", "missing_intervals", "carried_intervals", "flagged_intervals", "valid_intervals"]
         pd.testing.assert_frame_equal(got.quality[cols].astype(int), ref.quality[cols].astype(int))
-    assert progress.splitlines()[-1].startswith("fleet: units 2/2 done, chunks 8/8")
+    assert progress.splitlines()[-1].startswith("fleet: units 2/2 done, chunks 6/6")
     assert "chunks/s" in progress
 
 
@@ -71,8 +71,8 @@ def test_store_holds_what_one_whole_run_writes(backfilled, whole_run):
     db = open_store(url)
     try:
         # one transaction per unit and chunk, and one per unit for its findings
-        assert outcome.transactions == 2 * (4 + 1)
-        assert (db.runs()["status"] == "complete").all() and len(db.runs()) == 10
+        assert outcome.transactions == 2 * (3 + 1)
+        assert (db.runs()["status"] == "complete").all() and len(db.runs()) == 8
         for uid, ref in whole_run.items():
             frame, _ = _series_for_store(ref.series)
             got = db.series(uid)
@@ -107,19 +107,19 @@ def test_parquet_partitions_by_unit_and_month(backfilled, whole_run):
 def test_rerun_skips_work_done_for_the_same_fingerprint(backfilled, dask_client, whole_run):
     tmp, cfg, url, _, _ = backfilled
     runs_before = len(open_store(url).runs())
-    again = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="3D", client=dask_client, store=url,
+    again = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="2D", client=dask_client, store=url,
                          cache_dir=tmp / "cache", progress_stream=io.StringIO())
     assert sorted(again.units_skipped) == sorted(whole_run) and again.chunks_run == 0 and again.transactions == 0
     assert len(open_store(url).runs()) == runs_before
     # a run killed after its chunks were read but before anything was written: a new store, the
     # same cache; no chunk is read again and the results are the same
     fresh = f"sqlite:///{tmp / 'resumed.sqlite'}"
-    resumed = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="3D", client=dask_client, store=fresh,
+    resumed = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="2D", client=dask_client, store=fresh,
                            cache_dir=tmp / "cache", progress_stream=io.StringIO(), keep_results=True)
-    assert resumed.chunks_run == 0 and resumed.chunks_cached == 8 and resumed.ok
+    assert resumed.chunks_run == 0 and resumed.chunks_cached == 6 and resumed.ok
     for uid, ref in whole_run.items():
         assert_same_series(resumed.results[uid].series, ref.series, f"resumed {uid}")
     # another chunking is another fingerprint: nothing is skipped
-    other = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="5D", client=dask_client, store=url,
+    other = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="4D", client=dask_client, store=url,
                          cache_dir=tmp / "cache", progress_stream=io.StringIO(), units=["R-220"])
     assert other.chunks_run == 2 and other.units_done == ["R-220"]

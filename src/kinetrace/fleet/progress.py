@@ -28,6 +28,7 @@ class FleetProgress:
         self.every, self.clock = every, clock
         self.t0 = clock()
         self._last = -float("inf")
+        self._text = ""
 
     def chunk(self, *, skipped: bool = False) -> None:
         """One chunk done (``skipped``: found done by an earlier run of the same fingerprint)."""
@@ -54,7 +55,10 @@ class FleetProgress:
         worked = self.chunks_done - self.chunks_skipped
         rate = worked / elapsed
         left = self.chunks - self.chunks_done
-        eta = f"about {left / rate:.0f} s left" if rate > 0 and left else ("done" if not left else "time left unknown")
+        if left:
+            eta = f"about {left / rate:.0f} s left" if rate > 0 else "time left unknown"
+        else:
+            eta = "done" if self.units_done == self.units else "finishing the units"
         failed = f", {self.units_failed} failed" if self.units_failed else ""
         return (f"fleet: units {self.units_done}/{self.units} done{failed}, chunks {self.chunks_done}/{self.chunks} "
                 f"({self.chunks_skipped} found done), {rate:.1f} chunks/s, {eta}")
@@ -62,5 +66,7 @@ class FleetProgress:
     def show(self, force: bool = False) -> None:
         now = self.clock()
         if force or now - self._last >= self.every:
-            self._last = now
-            print(self.line(), file=self.stream, flush=True)
+            text = self.line()
+            if text != self._text:          # the same line twice says nothing new
+                print(text, file=self.stream, flush=True)
+            self._last, self._text = now, text
