@@ -20,6 +20,7 @@ from .backcalc import back_calculate
 from .feed import analysed_flags, monitoring_feed
 from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
 from .kinetics_step import fit_history, k_ref_band
+from .network_step import flowsheet_columns
 from .reconciliation import reconcile_unit
 from .roles import role_frame
 
@@ -102,6 +103,7 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     series["fitted_parameters"] = 1.0 if outcome.model is not None else 0.0
     series = series.join(analysed_flags(roles, model))
     series = series.join(k_ref_band(series, used, rec.roles, extra_sd=parameter_uncertainty(series, used, outcome.calibration)))
+    series = series.join(flowsheet_columns(data.values, data.valid, used))  # [units.flowsheet]; none: no columns
     if keep_from is not None:
         series = series.loc[series.index >= keep_from]
         if series.empty:
