@@ -207,6 +207,58 @@ def _check_correlations(unit: Unit, at: str, problems: ProblemList) -> None:
             problems.add(f"{at}.correlations", str(exc))
 
 
+def _check_flowsheet(unit: Unit, at: str, problems: ProblemList) -> None:
+    """``[units.flowsheet]``: a valid network with exactly one reactor, meters that are tags of the
+    unit with a fitting role and a sigma, and extents the meters can determine; ``stream_*``
+    tags only with a flowsheet that uses them."""
+    from ..chemistry import stoichiometric_matrix
+    from .model import flowsheet_network
+
+    n0 = len(problems)
+    tags = {t.tag: t for t in unit.tags}
+    fs = unit.flowsheet
+    used: set = set()
+    if fs is not None:
+        where = f"{at}.flowsheet"
+        kinds = [n.kind for n in fs.nodes]
+        if kinds.count("reactor") != 1:
+            problems.add(f"{where}.nodes", f"exactly one node of kind 'reactor' (this unit) is needed; "
+                         f"{kinds.count('reactor')} given")
+        declared = {s.name for s in unit.species}
+        for k, st in enumerate(fs.streams):
+            w = f"{where}.streams[{k}]"
+            meters = [("flow_tag", st.flow_tag, ("feed_flow", "outlet_flow", "stream_flow"), None)]
+            meters += [(f"conc_tags.{sp}", tg, ("feed_conc", "outlet_conc", "stream_conc"), sp)
+                       for sp, tg in st.conc_tags.items()]
+            for key, tg, roles, sp in meters:
+                if tg is None:
+                    continue
+                used.add(tg)
+                t = tags.get(tg)
+                if t is None:
+                    problems.add(f"{w}.{key}", f"tag {tg!r} is not in {at}.tags")
+                elif t.role not in roles or (sp is not None and t.species != sp):
+                    problems.add(f"{w}.{key}", f"tag {tg!r} has role {t.role!r}"
+                                 f"{'' if t.species is None else ' for ' + t.species}; allowed: {', '.join(roles)}"
+                                 f"{'' if sp is None else ' for ' + sp}")
+                elif t.sigma is None:
+                    problems.add(f"{w}.{key}", f"tag {tg!r} needs a sigma: the flowsheet weighs readings by it")
+            for sp in list(st.conc_tags) + list(st.known):
+                if sp not in declared:
+                    problems.add(w, f"species {sp!r} is not declared in {at}.species")
+        if len(problems) == n0:
+            try:
+                species = [s.name for s in unit.species]
+                nu = stoichiometric_matrix(species, [parse_equation(r.equation, r.id) for r in unit.reactions])
+                net, measured = flowsheet_network(fs, species, nu, [r.id for r in unit.reactions])
+                net.classify(measured).require_observable(net.unknown_names, what="reaction extents")
+            except ValueError as exc:  # ReconciliationError, UnobservableError, ChemistryError
+                problems.add(where, str(exc))
+    for t in unit.tags:
+        if t.role.startswith("stream_") and t.tag not in used:
+            problems.add(f"{at}.tags", f"tag {t.tag!r} ({t.role}) is used by no stream of {at}.flowsheet")
+
+
 def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
     names = [s.name for s in unit.species]
     declared = set(names)
@@ -320,6 +372,7 @@ def _check_unit(unit: Unit, at: str, problems: ProblemList) -> None:
             problems.add(f"{where}.valid_range", f"tag {t.tag!r}: low end must be below high end")
         roles.setdefault((t.role, t.species), t.tag)
     _check_correlations(unit, at, problems)
+    _check_flowsheet(unit, at, problems)
     for role in ("feed_flow", "outlet_flow", "temperature"):
         if (role, None) not in roles:
             problems.add(f"{at}.tags", f"no tag has role {role!r}; the design equation needs it")

@@ -60,6 +60,7 @@ class UnitModel:
     catalyst_changes: tuple = ()              # configured catalyst changes (UTC timestamps)
     decay_law: str = "auto"                   # decay family of the joint calibration
     correlations: tuple = ()                  # (tag_a, tag_b, rho) of correlated measurement errors [-]
+    flowsheet: object = None                  # schema.Flowsheet of [units.flowsheet], or None
 
     def index(self, species: str) -> int:
         """Row of ``species`` in ``nu`` and in concentration arrays."""
@@ -177,6 +178,34 @@ def _kind(unit: str, kind_of) -> str | None:
         return None
 
 
+def flowsheet_network(flowsheet, species, nu, reactions):
+    """The :class:`kinetrace.reconcile.Network` of a ``[units.flowsheet]`` (the unit's reactions
+    at its reactor node) and the mask of its packed variables that are metered or known exactly.
+
+    Parameters
+    ----------
+    flowsheet : schema.Flowsheet
+    species : sequence of str
+    nu : ndarray (ns, nr)
+        Stoichiometric matrix of the unit. [-]
+    reactions : sequence of str
+
+    Returns
+    -------
+    (Network, ndarray of bool)
+    """
+    from ..reconcile import Network
+
+    net = Network([(n.id, n.kind) for n in flowsheet.nodes],
+                  [(s.id, s.source, s.target) for s in flowsheet.streams], species, nu=nu, reactions=reactions)
+    measured = np.zeros(len(net.names), bool)
+    for j, st in enumerate(flowsheet.streams):
+        measured[net.flow_col(j)] = st.flow_tag is not None
+        for i, sp in enumerate(species):
+            measured[net.conc_col(j, i)] = sp in st.conc_tags or sp in st.known
+    return net, measured
+
+
 def unit_model(unit: Unit) -> UnitModel:
     """Build the SI :class:`UnitModel` of a validated unit configuration."""
     species = tuple(s.name for s in unit.species)
@@ -216,7 +245,7 @@ def unit_model(unit: Unit) -> UnitModel:
         plan_feed_flow=None if unit.plan is None else unit.plan.feed_flow,
         catalysed=None if unit.activity.catalysed is None else tuple(unit.activity.catalysed),
         catalyst_changes=tuple(unit.activity.catalyst_changes), decay_law=unit.activity.decay_law,
-        correlations=tag_correlations(unit),
+        correlations=tag_correlations(unit), flowsheet=unit.flowsheet,
     )
 
 

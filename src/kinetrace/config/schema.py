@@ -192,7 +192,8 @@ class ReactionSpec(_Strict):
     rate_law: RateLaw | None = None
 
 
-Role = Literal["feed_flow", "outlet_flow", "feed_conc", "outlet_conc", "temperature", "level", "volume"]
+Role = Literal["feed_flow", "outlet_flow", "feed_conc", "outlet_conc", "temperature", "level", "volume",
+               "stream_flow", "stream_conc"]   # stream_*: meters of other flowsheet streams
 Sampling = Literal["continuous", "analyzer", "lab"]
 
 #: Physical kind of the SI value each tag role carries.
@@ -204,6 +205,8 @@ ROLE_KIND: dict[str, str] = {
     "temperature": "temperature",
     "level": "level",
     "volume": "volume",          # a volume transmitter (any volume unit: m3, L, gal, bbl, ...)
+    "stream_flow": "volumetric_flow",
+    "stream_conc": "concentration",
 }
 
 
@@ -244,6 +247,35 @@ class Correlation(_Strict):
     tags: list[str] = Field(min_length=2)
     coefficient: float | None = None
     matrix: list[list[float]] | None = None
+
+
+class FlowsheetNode(_Strict):
+    """A node of the flowsheet around the reactor: ``reactor`` (the unit itself), ``mixer``,
+    ``splitter`` or ``separator``."""
+
+    id: str
+    kind: Literal["reactor", "mixer", "splitter", "separator"]
+
+
+class FlowsheetStream(_Strict):
+    """A stream between two nodes (``source``/``target`` omitted at the plant boundary), with the
+    tags that measure its flow and concentrations (``conc_tags``: species -> tag) and the
+    concentrations known exactly (``known``, e.g. ``{ B = "0 mol/m3" }`` for a fresh feed
+    without B). Everything else is unmeasured."""
+
+    id: str
+    source: str | None = None
+    target: str | None = None
+    flow_tag: str | None = None
+    conc_tags: dict[str, str] = Field(default_factory=dict)
+    known: dict[str, Concentration] = Field(default_factory=dict)
+
+
+class Flowsheet(_Strict):
+    """Nodes and streams around the reactor, reconciled together in the daily check."""
+
+    nodes: list[FlowsheetNode]
+    streams: list[FlowsheetStream]
 
 
 class VolumeSpec(_Strict):
@@ -302,6 +334,7 @@ class Unit(_Strict):
     feed: dict[str, Concentration] = Field(default_factory=dict)
     tags: list[Tag]
     correlations: list[Correlation] = Field(default_factory=list)
+    flowsheet: Flowsheet | None = None
     target: Target
     limits: Limits
     activity: Activity = Activity()

@@ -48,6 +48,7 @@ COLUMNS: dict[str, str] = {
     "rate": "mol/(m3 s)", "k_apparent": "SI, (mol/m3)^(1-n)/s", "k_ref": "SI, (mol/m3)^(1-n)/s",
     "activity": "-", "production": "mol/s", "production_mass": "kg/s", "target_mass": "kg/s",
     "production_ratio": "-", "steady": "bool", "rate_basis": "text", "running": "-",
+    "flowsheet_flow": "m3/s", "flowsheet_conc": "mol/m3", "flowsheet_extent": "mol/s",   # network_step
 }
 
 

@@ -22,6 +22,7 @@ from .backcalc import back_calculate
 from .feed import analysed_flags, monitoring_feed
 from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
 from .kinetics_step import fit_history, k_ref_band
+from .network_step import flowsheet_columns
 from .reconciliation import reconcile_unit
 from .roles import role_frame
 from .usable import VERDICTS, UnitNotCheckable, unit_verdict, verdict_series, verdict_summary
@@ -78,7 +79,7 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
         raise UnitNotCheckable(verdict, data, roles)
     measured = back_calculate(roles, model, fresh_k_ref=fresh_k_ref)
     result = finish_unit(cfg, model, roles, measured, data.quality, history=history,
-                         fresh_k_ref=fresh_k_ref, keep_from=keep_from)
+                         fresh_k_ref=fresh_k_ref, keep_from=keep_from, data=data)
     if result.calibration is not None:
         result.data = data
     return result
@@ -86,7 +87,7 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
 
 def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measured: pd.DataFrame,
                 quality: pd.DataFrame, *, history: pd.DataFrame | None = None,
-                fresh_k_ref: dict | None = None, keep_from=None) -> UnitResult:
+                fresh_k_ref: dict | None = None, keep_from=None, data=None) -> UnitResult:
     """The check of one unit after ingest: reconciliation, calibration, re-derivation, monitoring.
 
     :func:`check_unit` calls it on the rows it read; a backfill calls it once per unit on the
@@ -105,6 +106,9 @@ def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measure
         Per-tag data-quality summary of the readings. [counts]
     history, fresh_k_ref, keep_from
         As for :func:`check_unit`.
+    data : UnitData, optional
+        The readings as read (for a ``[units.flowsheet]``: its stream meters are not in ``roles``);
+        a backfill passes none, and a flowsheet's columns are then left out.
     """
     rec = reconcile_unit(roles, model, steady=measured["steady"])
     series = back_calculate(rec.roles, model, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
@@ -137,6 +141,8 @@ def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measure
     series["fitted_parameters"] = 1.0 if outcome.model is not None else 0.0
     series = series.join(analysed_flags(roles, model))
     series = series.join(k_ref_band(series, used, rec.roles, extra_sd=parameter_uncertainty(series, used, outcome.calibration)))
+    if data is not None:   # [units.flowsheet]: the network's reconciliation of the raw readings; none: no columns
+        series = series.join(flowsheet_columns(data.values, data.valid, used))
     if keep_from is not None:
         series = series.loc[series.index >= keep_from]
         if series.empty:

@@ -119,7 +119,7 @@ def role_frame(values: pd.DataFrame, valid: pd.DataFrame, volume: pd.Series, mod
     out: dict[str, np.ndarray] = {}
     groups: dict[str, list] = {}
     for tag in model.tags:
-        if tag.tag in values.columns:
+        if tag.tag in values.columns and not tag.role.startswith("stream_"):  # flowsheet meters: network_step
             groups.setdefault(role_column(tag.role, tag.species), []).append(tag)
     for col, tags in groups.items():
         value = np.full(len(values), np.nan)
