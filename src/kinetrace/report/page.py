@@ -14,7 +14,7 @@ import pandas as pd
 
 from .content import Figure, ReportContent, UnitReport, iso
 from ..units import display
-from .svg import COLOURS, production_bars, trend_line
+from .charts import COLOURS, activity_chart, production_chart, to_svg
 from .wording import CAUTIONS, alarm_sentence, gap_sentence, number, quality_word, sig, when, whatif_sentence
 
 STATUS_CLASS = {"on target": "met", "below target": "short", "down": "down", "no data": "nodata"}
@@ -197,13 +197,13 @@ def _outlook_block(u: UnitReport, units: dict | None = None) -> str:
 def _charts(u: UnitReport) -> str:
     charts = []
     if len(u.week_rows):
-        charts.append(production_bars(u.week_rows, title=f"{u.unit}: daily production and target, 7 days"))
+        charts.append(to_svg(production_chart(u.week_rows, title=f"{u.unit}: daily production and target, 7 days")))
     if u.trend is not None and len(u.trend) >= 2:
         needed = None if u.forecast is None else float(u.forecast["activity_needed"])
-        charts.append(trend_line(u.trend, title=f"{u.unit}: catalyst activity, hourly means", needed=needed))
+        charts.append(to_svg(activity_chart(u.trend, title=f"{u.unit}: catalyst activity, hourly means", needed=needed)))
     if not charts:
         return ""
-    caption = ("Bars: production per day (green at or above target, orange below); black ticks: target. "
+    caption = ("Bars: production per day (green at or above target, rust below); dark ticks: target. "
                "Line: hourly mean of the stored activity series; dashed: activity needed for the target.")
     return f"<div class='charts'>{''.join(charts)}</div><div class='evidence'>{escape(caption)}</div>"
 
