@@ -98,3 +98,16 @@ def steady_points(url: str, unit: str, k_variable: str, start, end) -> pd.DataFr
     from .arrhenius import steady_points as points
 
     return points(store_for(url), unit, k_variable, start, end)
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def verdicts(url: str) -> list[tuple[str, str, str]]:
+    """(unit, state, sentence) of every unit on its latest complete day: the same sentence as the
+    check's output and the report (kinetrace.report.verdict), from the store only."""
+    from kinetrace.report import ReportError, collect
+
+    try:
+        content = collect(store_for(url), tz=source.site_timezone())
+    except ReportError:
+        return []
+    return [(u.unit, u.verdict.state, u.verdict.sentence) for u in content.units if u.verdict is not None]

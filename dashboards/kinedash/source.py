@@ -311,3 +311,14 @@ def windows_of(flag: pd.Series) -> pd.DataFrame:
     after = np.flatnonzero(d == -1)
     ends = np.minimum(after, len(t) - 1)
     return pd.DataFrame({"start": t[first], "end": t[ends]})
+
+
+def site_timezone(environ=None) -> str:
+    """The site's time zone from the plant configuration (``KINETRACE_CONFIG``), else UTC."""
+    environ = os.environ if environ is None else environ
+    from kinetrace.config import load_config
+
+    try:
+        return load_config(Path(environ.get("KINETRACE_CONFIG") or DEFAULT_CONFIG)).site.timezone
+    except (KinetraceError, OSError):
+        return "UTC"

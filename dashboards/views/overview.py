@@ -14,6 +14,10 @@ if not units:
     ui.not_available("Results", "the store holds no unit yet; run `kinetrace check`")
     st.stop()
 
+# the verdict of every unit first: the same sentence as the check's output and the report
+for _unit, state, sentence in cached.verdicts(url):
+    (st.success if state == "on target" else st.warning)(f"**{state}** — {sentence}")
+
 period = st.radio("Production over", ["last day", "last 7 days"], horizontal=True, key="glance_period")
 n_days = 1 if period == "last day" else 7
 daily = cached.daily(url)

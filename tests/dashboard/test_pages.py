@@ -196,3 +196,15 @@ def test_range_from_address_and_kept_across_pages(monkeypatch, hourly_url):
     at.switch_page("views/overview.py").run()
     at.switch_page("views/unit.py").run()
     assert at.radio(key="kt_range").value == "last 24 h"
+
+
+def test_overview_opens_with_the_verdict(monkeypatch, hourly_url):
+    """The first page opens with each unit's verdict: the same sentence the report builds from the
+    same store (kinetrace.report.collect)."""
+    from kinetrace.report import collect
+
+    store = open_store(hourly_url, create=False)
+    want = [u.verdict.sentence for u in collect(store).units if u.verdict is not None]
+    at = app(monkeypatch, hourly_url)
+    shown = [b.value for b in list(at.success) + list(at.warning)]
+    assert want and all(any(w in s for s in shown) for w in want), (want, shown)

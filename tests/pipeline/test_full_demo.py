@@ -40,6 +40,9 @@ def test_full_history(demo90):
     assert len(found) == 1 and abs(found[0].onset - onset) <= pd.Timedelta("3h")
     assert found[0].relative == pytest.approx(bias["relative"], rel=0.2)
     assert [f for f in r210.faults if not f.ambiguous] == found
+    # one alarm count: the open sensor fault is counted with the open drift alarms
+    drift_open = sum(1 for a in r210.assessment.alarms if r210.assessment.as_of - a.detected < r210.assessment.open_for)
+    assert r210.summary["open_alarms"] == drift_open + 1
 
 
 @pytest.mark.slow

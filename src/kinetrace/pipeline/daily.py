@@ -187,6 +187,11 @@ def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measure
         result.kinetic_parameters = pd.concat([result.kinetic_parameters, pd.DataFrame([{
             "name": "feed_basis", "value": float(result.assessment.feed_basis.count("analysed")),
             "unit_of_measure": "-", "method": result.assessment.feed_basis}])], ignore_index=True)
+    # one alarm count: open drift alarms and open sensor faults (the store's open alarms, as the
+    # check's attention list counts them)
+    last = series.index[-1] if len(series) else None
+    open_faults = sum(1 for f in rec.faults if last is not None and f.end >= last - pd.Timedelta("2h"))
+    result.summary["open_alarms"] = int(result.summary.get("open_alarms", 0)) + open_faults
     result.summary["parameters"] = outcome.statement
     return result
 
