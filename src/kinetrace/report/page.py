@@ -42,6 +42,10 @@ td.n, th.n {{ text-align: right; font-variant-numeric: tabular-nums; }}
             font-size: 0.9em; margin: 6px 0; }}
 .evidence {{ color: #5b6770; font-size: 0.88em; }}
 footer {{ color: #5b6770; font-size: 0.82em; margin-top: 18px; }}
+svg {{ max-width: 100%; height: auto; }}
+@media (max-width: 820px) {{ body {{ padding: 10px; }} table {{ font-size: 0.86em; }} th, td {{ padding: 3px 5px; }} }}
+@media print {{ body {{ background: #ffffff; max-width: none; padding: 0; }} .unit {{ break-inside: avoid-page; }}
+  .badge {{ border: 1px solid #1f2b33; }} }}
 """
 
 
@@ -108,7 +112,7 @@ def _alarm_block(u: UnitReport, content: ReportContent) -> str:
             src = f"alarms|{u.unit}|{r['kind']}|{r['variable']}|{iso(r['detected'])}|magnitude"
             size = "" if pd.isna(r["magnitude"]) else \
                 f" Size {fig(Figure(float(r['magnitude']), src, r['magnitude_unit']), digits=3)}."
-            lines.append(f"<li>{escape(alarm_sentence(r))}{size}"
+            lines.append(f"<li>{escape(alarm_sentence(r, content.span[1]))}{size}"
                          f"<div class='evidence'>{escape(r['evidence'])}</div></li>")
         items.append(f"<h3>{title}</h3>" + (f"<ul>{''.join(lines)}</ul>" if lines else "<p>None.</p>"))
     return "".join(items)

@@ -59,16 +59,27 @@ def when(ts) -> str:
     return pd.Timestamp(ts).tz_convert("UTC").strftime("%d %b %H:%M UTC").lstrip("0")
 
 
-def alarm_sentence(row) -> str:
-    """One alarm in plain words (kind, variable, onset, detection, state; size and evidence apart).
+def alarm_sentence(row, as_of=None) -> str:
+    """One alarm in plain words (kind, variable, onset, detection, state and how long it has been
+    open at ``as_of``; size and evidence apart).
 
     >>> alarm_sentence({"kind": "step", "variable": "R210-TT-101", "onset": pd.Timestamp("2026-11-30T07:00Z"),
     ...                 "detected": pd.Timestamp("2026-11-30T07:30Z"), "state": "open", "closed": None})
     'Sudden step on R210-TT-101, began about 30 Nov 07:00 UTC, detected 30 Nov 07:30 UTC; still open.'
+    >>> alarm_sentence({"kind": "sensor_bias", "variable": "R210-FT-101", "onset": pd.Timestamp("2026-10-26T00:00Z"),
+    ...                 "detected": pd.Timestamp("2026-10-26T02:00Z"), "state": "open", "closed": None},
+    ...                as_of=pd.Timestamp("2026-11-30T00:00Z"))
+    'Sensor bias on R210-FT-101, began about 26 Oct 00:00 UTC, detected 26 Oct 02:00 UTC; open for 34 days.'
     """
     kind = KIND_WORDS.get(row["kind"], row["kind"].replace("_", " ").capitalize())
     onset = "" if pd.isna(row["onset"]) else f", began about {when(row['onset'])}"
     state = "still open" if row["state"] == "open" else f"cleared {when(row['closed'])}"
+    if row["state"] == "open" and as_of is not None and not pd.isna(row["detected"]):
+        days = (pd.Timestamp(as_of) - pd.Timestamp(row["detected"])) / pd.Timedelta(days=1)
+        if days >= 1:
+            state = f"open for {int(days)} days"   # whole days
+        elif days > 0:
+            state = f"open for {days * 24:.0f} h"
     return f"{kind} on {row['variable']}{onset}, detected {when(row['detected'])}; {state}."
 
 
