@@ -72,7 +72,13 @@ def _k_display(r, value: float) -> str:
     return f"{v:.4g} {unit}"
 
 
-def _print_summary(results, out_dir: Path, verdicts=()) -> None:
+def _production_unit(config: Path) -> str:
+    from .config import load_config
+
+    return load_config(config).site.production_unit
+
+
+def _print_summary(results, out_dir: Path, verdicts=(), production_unit: str = "t/d") -> None:
     from rich.console import Console
     from rich.table import Table
 
@@ -84,14 +90,21 @@ def _print_summary(results, out_dir: Path, verdicts=()) -> None:
             console.print(f"  - {v}", highlight=False, markup=False)
         console.print("")
     table = Table(title="kinetrace daily check (last 24 h of data)")
-    for col in ("unit", "kg/h", "target", "%", "X", "k_ref", "activity", "last 24 h"):
+    from .units import convert
+
+    pu = production_unit
+    for col in ("unit", pu, "target", "%", "X", "k_ref", "activity", "last 24 h"):
         table.add_column(col, justify="right" if col not in ("unit", "last 24 h") else "left",
-                         no_wrap=col in ("unit", "kg/h", "target", "%", "X", "activity"), overflow="fold")
-    table.caption = ("kg/h: production; target in kg/h; %: of target; X: conversion; k_ref: rate constant at the "
+                         no_wrap=col in ("unit", pu, "target", "%", "X", "activity"), overflow="fold")
+    table.caption = (f"{pu}: production; target in {pu}; %: of target; X: conversion; k_ref: rate constant at the "
                      "reference temperature; steady hours and the rest in the detail below")
+
+    def rate(kg_h):
+        return _fmt(float(convert(kg_h, "kg/h", pu)) if kg_h is not None and math.isfinite(kg_h) else kg_h, ".4g")
+
     for r in results:
         s = r.summary
-        table.add_row(s["unit"], _fmt(s["production_kg_h"], ".0f"), _fmt(s["target_kg_h"], ".0f"),
+        table.add_row(s["unit"], rate(s["production_kg_h"]), rate(s["target_kg_h"]),
                       _fmt(100 * s["production_ratio"], ".1f"), _fmt(s["conversion"], ".3f"),
                       _k_display(r, s["k_ref"]), _fmt(s["activity"], ".3f"), s["status"])
     console.print(table)
@@ -332,7 +345,7 @@ def check(config: Path = typer.Option(..., "--config", "-c", help="Plant configu
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("running the check", config, out) from None
     if results:
-        _print_summary(results, out_dir, verdicts)
+        _print_summary(results, out_dir, verdicts, _production_unit(config))
     elif not not_checked:
         typer.echo("No new data since the last run; results unchanged.")
     reasons = [f"unit {uid} not checked: its data could not be read: {why}" for uid, why in not_checked] + reasons
@@ -410,7 +423,8 @@ def demo(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c", help="Demo p
         raise typer.Exit(EXIT_ERROR) from None
     except Exception:  # noqa: BLE001 - no traceback reaches the user
         raise _internal_error("running the demo", config, None) from None
-    _print_summary(results, out_dir, [u.verdict.sentence for u in files.content.units if u.verdict is not None])
+    _print_summary(results, out_dir, [u.verdict.sentence for u in files.content.units if u.verdict is not None],
+                   _production_unit(config))
     typer.echo(f"Daily report: {files.html}")
     typer.echo(f"Workbook:     {files.xlsx}")
     typer.echo(f"Dashboard:    make dashboard   (or .venv/bin/kinetrace dashboard --config {config})")

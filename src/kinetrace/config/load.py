@@ -123,6 +123,15 @@ def _check_site(cfg: PlantConfig, problems: ProblemList) -> None:
             zoneinfo.ZoneInfo(tz)
         except (zoneinfo.ZoneInfoNotFoundError, ValueError):
             problems.add(where, f"unknown IANA time zone {tz!r} (e.g. 'Europe/Berlin', 'America/Chicago', 'UTC')")
+    try:
+        from ..units import kind_of
+
+        kind = kind_of(cfg.site.production_unit)
+    except KinetraceError:
+        kind = None
+    if kind != "mass_flow":
+        problems.add("site.production_unit", f"{cfg.site.production_unit!r} is not a mass per time "
+                     "(e.g. 't/d', 'kg/h', 'lb/h')")
     src = cfg.source
     if src.kind in ("csv", "sqlite") and not src.path:
         problems.add("source.path", f"a {src.kind} source needs a path")

@@ -60,6 +60,7 @@ class Site(_Strict):
 
     name: str
     timezone: str = "UTC"
+    production_unit: str = "t/d"     # production and target at the operator edges (a mass per time)
 
 
 class ColumnNames(_Strict):
