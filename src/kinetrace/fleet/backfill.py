@@ -114,7 +114,7 @@ def run_backfill(config_path, *, since, until, chunk: str = DEFAULT_CHUNK, conte
                  units=None, workers: int = 2, address: str | None = None, client=None, store: str | None = "config",
                  parquet=None, cache_dir=None, progress_stream=None, progress_every: float = 2.0,
                  retries: int = 2, memory_limit: str = DEFAULT_MEMORY_LIMIT,
-                 keep_results: bool = False) -> BackfillOutcome:
+                 keep_results: bool = False, quiet: bool = False) -> BackfillOutcome:
     """Run the check of every unit over ``[since, until)`` in units x time chunks on Dask distributed.
 
     Parameters
@@ -148,6 +148,8 @@ def run_backfill(config_path, *, since, until, chunk: str = DEFAULT_CHUNK, conte
         Memory limit per local worker. [Dask size string]
     keep_results : bool
         Keep each unit's UnitResult in the outcome (tests; costs memory).
+    quiet : bool
+        Keep Dask distributed's INFO lines out of the log (the command line).
 
     Returns
     -------
@@ -196,7 +198,7 @@ def run_backfill(config_path, *, since, until, chunk: str = DEFAULT_CHUNK, conte
                 _drive(client, config_path, todo, plan, fps, period, context, cache, db, done, parquet,
                        retries, progress, outcome, keep_results)
             else:
-                with open_client(target, workers=workers, memory_limit=memory_limit) as cl:
+                with open_client(target, workers=workers, memory_limit=memory_limit, quiet=quiet) as cl:
                     outcome.address = str(cl.scheduler.address)
                     _drive(cl, config_path, todo, plan, fps, period, context, cache, db, done, parquet,
                            retries, progress, outcome, keep_results)
