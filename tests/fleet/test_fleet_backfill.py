@@ -82,7 +82,7 @@ def test_store_holds_what_one_whole_run_writes(backfilled, whole_run):
             assert_same_series(got[want.columns], want, f"store {uid}")
             assert db.watermark(uid) == ref.series.index[-1]
         for table in ("daily_production", "alarms", "forecasts", "whatif", "parameters"):
-            a = db.dump([table])[table] if hasattr(db, "dump") else None
+            a = db.dump([table])[table]
             b = ref_db.dump([table])[table]
             drop = [c for c in ("run_id",) if c in b]
             pd.testing.assert_frame_equal(a.drop(columns=drop).reset_index(drop=True),
