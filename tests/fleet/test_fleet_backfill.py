@@ -125,19 +125,20 @@ def test_rerun_skips_work_done_for_the_same_fingerprint(backfilled, dask_client,
     assert other.chunks_run == 2 and other.units_done == ["R-220"]
 
 
-def test_chunks_after_the_last_reading_match_the_whole_run(fleet_plant, dask_client):
-    # the historian ends on 7 September; a period two days longer ends in a chunk without readings,
-    # which one whole run fills with missing intervals after carrying the last readings forward
+def test_chunks_outside_the_readings_match_the_whole_run(fleet_plant, dask_client):
+    # the historian runs from 1 to 7 September; a period two days longer on each side begins and ends
+    # in chunks without readings, which one whole run fills with missing intervals (after carrying the
+    # last readings forward at the end)
     from kinetrace.config import load_config, unit_model
     from kinetrace.pipeline.daily import check_unit
 
     tmp, cfg_path = fleet_plant
-    until = UNTIL + pd.Timedelta("2D")
+    since, until = SINCE - pd.Timedelta("2D"), UNTIL + pd.Timedelta("2D")
     cfg = load_config(cfg_path)
-    ref = check_unit(cfg, unit_model(cfg.units[1]), config_path=cfg_path, since=SINCE, until=until)
-    out = run_backfill(cfg_path, since=SINCE, until=until, chunk="2D", client=dask_client, store=None,
+    ref = check_unit(cfg, unit_model(cfg.units[1]), config_path=cfg_path, since=since, until=until)
+    out = run_backfill(cfg_path, since=since, until=until, chunk="2D", client=dask_client, store=None,
                        cache_dir=tmp / "cache-tail", progress_stream=io.StringIO(), units=[cfg.units[1].id],
                        keep_results=True)
     assert out.ok, out.failed
-    assert ref.series.index[-1] == until - pd.Timedelta("1h")
+    assert ref.series.index[0] == since and ref.series.index[-1] == until - pd.Timedelta("1h")
     assert_same_series(out.results[cfg.units[1].id].series, ref.series, "tail")

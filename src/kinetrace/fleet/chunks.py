@@ -78,8 +78,8 @@ def chunk_rows(config_path: str, unit_id: str, start: pd.Timestamp, end: pd.Time
 
     Reads ``[start - context, end + context)``, clipped to the backfill ``period`` (ingest adds
     its own look-back for screening and lab carry-over), and keeps the grid rows in
-    ``[start, end)``; a chunk after the historian's last reading is read from further back
-    (:func:`_read_back`). Everything after ingest that looks at more than one row (the role frame's
+    ``[start, end)``; a chunk after the historian's last reading (or before its first) is read
+    from further back (or ahead), see :func:`_read_around`. Everything after ingest that looks at more than one row (the role frame's
     uncertainty floor, a median over the period; the steady-state test, whose noise scale is a
     median over the period and whose derivatives are centred) runs on the chunks put end to end
     (:func:`kinetrace.fleet.backfill.finish_from_chunks`), so the seams leave no trace.
@@ -112,19 +112,22 @@ def chunk_rows(config_path: str, unit_id: str, start: pd.Timestamp, end: pd.Time
     lo, hi = start - pd.Timedelta(context), end + pd.Timedelta(context)
     if period is not None:
         lo, hi = max(lo, period[0]), min(hi, period[1])
-    data = _read_back(cfg, model, config_path, lo, hi, period)
+    data = _read_around(cfg, model, config_path, lo, hi, period)
     keep = (data.values.index >= start) & (data.values.index < end)
     return {"values": data.values.loc[keep], "valid": data.valid.loc[keep],
             "volume": data.volume.reindex(data.values.index).loc[keep], "quality": data.quality,
             "context_rows": int((~keep).sum())}
 
 
-def _read_back(cfg, model, config_path, lo: pd.Timestamp, hi: pd.Timestamp, period):
-    """``read_unit`` of ``[lo, hi)``; where that window holds no reading of a tag the unit needs (a
-    chunk after the historian's last reading), read from further back, doubling the span each time,
-    down to the period's start: one whole read of the period also carries the last readings forward
-    and fills such rows with missing intervals, and ingest gives the same grid rows whatever the
-    window's start. With no readings in the whole period the whole read's error is raised."""
+def _read_around(cfg, model, config_path, lo: pd.Timestamp, hi: pd.Timestamp, period):
+    """``read_unit`` of ``[lo, hi)``, widened where that window holds no reading of a tag the unit needs.
+
+    A chunk after the historian's last reading is read from further back, one before its first
+    reading from further ahead, the span doubling each time, within the period: one whole read of
+    the period fills such rows with missing intervals (after carrying the last readings forward),
+    and ingest gives the same grid rows whatever the window's edges. With no readings in the whole
+    period the whole read's error is raised.
+    """
     from ..errors import IngestError
     from ..ingest import read_unit
 
@@ -133,7 +136,10 @@ def _read_back(cfg, model, config_path, lo: pd.Timestamp, hi: pd.Timestamp, peri
         try:
             return read_unit(cfg, model, config_path=config_path, since=lo, until=hi)
         except IngestError:
-            if period is None or lo <= period[0]:
+            if period is None or (lo <= period[0] and hi >= period[1]):
                 raise
             span = 2 * span                     # a few reads at most: the span doubles each time
-            lo = max(period[0], hi - span)
+            if lo > period[0]:
+                lo = max(period[0], hi - span)
+            else:
+                hi = min(period[1], lo + span)
