@@ -123,6 +123,14 @@ def test_rerun_skips_work_done_for_the_same_fingerprint(backfilled, dask_client,
     other = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="4D", client=dask_client, store=url,
                          cache_dir=tmp / "cache", progress_stream=io.StringIO(), units=["R-220"])
     assert other.chunks_run == 2 and other.units_done == ["R-220"]
+    # --redo: everything again, the same rows replaced, none added
+    redo = run_backfill(cfg, since=SINCE, until=UNTIL, chunk="2D", client=dask_client, store=url,
+                        cache_dir=tmp / "cache", progress_stream=io.StringIO(), units=["R-220"], resume=False)
+    assert redo.chunks_run == 3 and redo.chunks_cached == 0 and redo.units_done == ["R-220"]
+    db = open_store(url)
+    assert not db.series("R-220").index.duplicated().any()
+    assert db.series("R-220").index.equals(whole_run["R-220"].series.index)
+    db.close()
 
 
 def test_chunks_outside_the_readings_match_the_whole_run(fleet_plant, dask_client):
