@@ -16,7 +16,7 @@ Usage: ``python benchmarks/bench_fleet.py [--units 50] [--years 1] [--chunk 30D]
 from __future__ import annotations
 
 import argparse
-import io
+import os
 import resource
 import sys
 import tempfile
@@ -25,6 +25,8 @@ from pathlib import Path
 
 ROOT = Path(__file__).resolve().parents[1]
 sys.path.insert(0, str(ROOT / "src"))
+# as the command line does (kinetrace.cli): one OpenBLAS thread for the check's small dense solves
+os.environ.setdefault("OPENBLAS_NUM_THREADS", "1")
 
 
 def historian(folder: Path, days: int) -> Path:

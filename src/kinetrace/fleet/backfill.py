@@ -114,7 +114,7 @@ def run_backfill(config_path, *, since, until, chunk: str = DEFAULT_CHUNK, conte
                  units=None, workers: int = 2, address: str | None = None, client=None, store: str | None = "config",
                  parquet=None, cache_dir=None, progress_stream=None, progress_every: float = 2.0,
                  retries: int = 2, memory_limit: str = DEFAULT_MEMORY_LIMIT,
-                 keep_results: bool = False) -> BackfillOutcome:
+                 keep_results: bool = False, quiet: bool = False, resume: bool = True) -> BackfillOutcome:
     """Run the check of every unit over ``[since, until)`` in units x time chunks on Dask distributed.
 
     Parameters
@@ -148,6 +148,11 @@ def run_backfill(config_path, *, since, until, chunk: str = DEFAULT_CHUNK, conte
         Memory limit per local worker. [Dask size string]
     keep_results : bool
         Keep each unit's UnitResult in the outcome (tests; costs memory).
+    quiet : bool
+        Keep Dask distributed's INFO lines out of the log (the command line).
+    resume : bool
+        Skip units and chunks found done for the same run fingerprint (default); False re-derives
+        everything (after corrections to the historian, which the fingerprint does not see).
 
     Returns
     -------
@@ -180,7 +185,7 @@ def run_backfill(config_path, *, since, until, chunk: str = DEFAULT_CHUNK, conte
     outcome = BackfillOutcome(period=period)
     progress = FleetProgress(len(chosen), len(chosen) * len(edges), stream=progress_stream, every=progress_every)
     try:
-        done = done_windows(db) if db is not None else set()
+        done = done_windows(db) if (db is not None and resume) else set()
         todo = []
         for u in chosen:
             if (fps[u][1], period[0], period[1]) in done:
@@ -194,12 +199,12 @@ def run_backfill(config_path, *, since, until, chunk: str = DEFAULT_CHUNK, conte
             target = scheduler_address(cfg, address=address)
             if client is not None:
                 _drive(client, config_path, todo, plan, fps, period, context, cache, db, done, parquet,
-                       retries, progress, outcome, keep_results)
+                       retries, progress, outcome, keep_results, resume)
             else:
-                with open_client(target, workers=workers, memory_limit=memory_limit) as cl:
+                with open_client(target, workers=workers, memory_limit=memory_limit, quiet=quiet) as cl:
                     outcome.address = str(cl.scheduler.address)
                     _drive(cl, config_path, todo, plan, fps, period, context, cache, db, done, parquet,
-                           retries, progress, outcome, keep_results)
+                           retries, progress, outcome, keep_results, resume)
     finally:
         if db is not None:
             db.close()
@@ -208,7 +213,7 @@ def run_backfill(config_path, *, since, until, chunk: str = DEFAULT_CHUNK, conte
 
 
 def _drive(client, config_path, todo, plan, fps, period, context, cache, db, done, parquet, retries,
-           progress, outcome, keep_results) -> None:
+           progress, outcome, keep_results, resume=True) -> None:
     """Submit the chunks, then each unit's finishing task as its chunks come in; write as results arrive."""
     from distributed import as_completed
 
@@ -217,7 +222,7 @@ def _drive(client, config_path, todo, plan, fps, period, context, cache, db, don
     futures = []
     for u in todo:
         for c in plan[u]:
-            cached = load_chunk(cache, fps[u][0], u, c)
+            cached = load_chunk(cache, fps[u][0], u, c) if resume else None
             if cached is not None:
                 parts[u][c.index] = cached
                 outcome.chunks_cached += 1

@@ -78,7 +78,8 @@ def chunk_rows(config_path: str, unit_id: str, start: pd.Timestamp, end: pd.Time
 
     Reads ``[start - context, end + context)``, clipped to the backfill ``period`` (ingest adds
     its own look-back for screening and lab carry-over), and keeps the grid rows in
-    ``[start, end)``. Everything after ingest that looks at more than one row (the role frame's
+    ``[start, end)``; a chunk after the historian's last reading (or before its first) is read
+    from further back (or ahead), see :func:`_read_around`. Everything after ingest that looks at more than one row (the role frame's
     uncertainty floor, a median over the period; the steady-state test, whose noise scale is a
     median over the period and whose derivatives are centred) runs on the chunks put end to end
     (:func:`kinetrace.fleet.backfill.finish_from_chunks`), so the seams leave no trace.
@@ -104,7 +105,6 @@ def chunk_rows(config_path: str, unit_id: str, start: pd.Timestamp, end: pd.Time
         (grid rows read as context and dropped).
     """
     from ..config import load_config, unit_model
-    from ..ingest import read_unit
 
     cfg = load_config(config_path)
     unit = next(u for u in cfg.units if u.id == unit_id)
@@ -112,8 +112,34 @@ def chunk_rows(config_path: str, unit_id: str, start: pd.Timestamp, end: pd.Time
     lo, hi = start - pd.Timedelta(context), end + pd.Timedelta(context)
     if period is not None:
         lo, hi = max(lo, period[0]), min(hi, period[1])
-    data = read_unit(cfg, model, config_path=config_path, since=lo, until=hi)
+    data = _read_around(cfg, model, config_path, lo, hi, period)
     keep = (data.values.index >= start) & (data.values.index < end)
     return {"values": data.values.loc[keep], "valid": data.valid.loc[keep],
             "volume": data.volume.reindex(data.values.index).loc[keep], "quality": data.quality,
             "context_rows": int((~keep).sum())}
+
+
+def _read_around(cfg, model, config_path, lo: pd.Timestamp, hi: pd.Timestamp, period):
+    """``read_unit`` of ``[lo, hi)``, widened where that window holds no reading of a tag the unit needs.
+
+    A chunk after the historian's last reading is read from further back, one before its first
+    reading from further ahead, the span doubling each time, within the period: one whole read of
+    the period fills such rows with missing intervals (after carrying the last readings forward),
+    and ingest gives the same grid rows whatever the window's edges. With no readings in the whole
+    period the whole read's error is raised.
+    """
+    from ..errors import IngestError
+    from ..ingest import read_unit
+
+    span = hi - lo
+    while True:
+        try:
+            return read_unit(cfg, model, config_path=config_path, since=lo, until=hi)
+        except IngestError:
+            if period is None or (lo <= period[0] and hi >= period[1]):
+                raise
+            span = 2 * span                     # a few reads at most: the span doubles each time
+            if lo > period[0]:
+                lo = max(period[0], hi - span)
+            else:
+                hi = min(period[1], lo + span)

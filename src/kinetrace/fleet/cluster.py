@@ -2,6 +2,7 @@
 
 from __future__ import annotations
 
+import logging
 import os
 from contextlib import contextmanager
 
@@ -42,8 +43,19 @@ def scheduler_address(cfg=None, *, address: str | None = None, environ=None) -> 
     return None
 
 
+def quiet_distributed(level: int = logging.WARNING) -> None:
+    """Raise Dask distributed's loggers of this process to ``level``: their INFO lines (workers
+    registered, connections opened) would bury the progress lines; warnings and errors stay."""
+    import distributed  # noqa: F401 - its loggers exist once it is imported
+
+    for name in list(logging.root.manager.loggerDict):
+        if name == "distributed" or name.startswith("distributed."):
+            logging.getLogger(name).setLevel(level)
+
+
 @contextmanager
-def open_client(address: str | None = None, *, workers: int = 2, memory_limit: str = DEFAULT_MEMORY_LIMIT):
+def open_client(address: str | None = None, *, workers: int = 2, memory_limit: str = DEFAULT_MEMORY_LIMIT,
+                quiet: bool = False):
     """A ``dask.distributed.Client``: to ``address``, or to a new local cluster of worker processes.
 
     Parameters
@@ -55,6 +67,8 @@ def open_client(address: str | None = None, *, workers: int = 2, memory_limit: s
         Local worker processes. [-]
     memory_limit : str
         Memory limit per local worker. [Dask size string, e.g. "2GiB"]
+    quiet : bool
+        Keep distributed's INFO lines out of the log (:func:`quiet_distributed`).
 
     Yields
     ------
@@ -62,10 +76,21 @@ def open_client(address: str | None = None, *, workers: int = 2, memory_limit: s
     """
     from distributed import Client, LocalCluster
 
+    if quiet:
+        quiet_distributed()
     if address:
         with Client(address, timeout="30s") as client:
             yield client
         return
-    with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, memory_limit=memory_limit,
-                      dashboard_address=":0") as cluster, Client(cluster) as client:
-        yield client
+    nanny_log = logging.getLogger("distributed.nanny")
+    level = nanny_log.level
+    try:
+        with LocalCluster(n_workers=workers, threads_per_worker=1, processes=True, memory_limit=memory_limit,
+                          dashboard_address=":0") as cluster, Client(cluster) as client:
+            try:
+                yield client
+            finally:
+                # on close, a worker slow to exit is killed by its nanny: expected, not worth a warning
+                nanny_log.setLevel(logging.ERROR)
+    finally:
+        nanny_log.setLevel(level)

@@ -2,14 +2,11 @@
 
 from __future__ import annotations
 
-import logging
 import sys
-
-log = logging.getLogger("kinetrace")
 
 
 def backfill_command(config, *, since, until, chunk: str, workers: int, scheduler: str | None,
-                     parquet, units, memory_limit: str, echo=print) -> int:
+                     parquet, units, memory_limit: str, redo: bool = False, echo=print) -> int:
     """Run a backfill and say what it did; returns the exit code.
 
     0 every unit's results written (or found written by an earlier run of the same fingerprint);
@@ -25,7 +22,7 @@ def backfill_command(config, *, since, until, chunk: str, workers: int, schedule
         raise KinetraceError(f"--workers {workers}: must be at least 1")
     outcome = run_backfill(config, since=since, until=until, chunk=chunk, workers=workers, address=scheduler,
                            parquet=parquet, units=units or None, memory_limit=memory_limit,
-                           progress_stream=sys.stderr)
+                           progress_stream=sys.stderr, quiet=True, resume=not redo)
     where = f" on {outcome.address}" if outcome.address else ""
     echo(f"Backfill {outcome.period[0]:%Y-%m-%d %H:%M} to {outcome.period[1]:%Y-%m-%d %H:%M} UTC{where}: "
          f"{len(outcome.units_done)} unit(s) written, {len(outcome.units_skipped)} found done, "

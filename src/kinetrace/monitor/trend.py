@@ -148,7 +148,10 @@ class ActivityTrend:
         DataFrame
             Columns ``activity``, ``lower``, ``upper`` [-], index the times.
         """
-        idx = pd.DatetimeIndex([utc_timestamp(t, "time") for t in times])
+        if isinstance(times, pd.DatetimeIndex):       # the usual case: converted at once, no loop over times
+            idx = times.tz_localize("UTC") if times.tz is None else times.tz_convert("UTC")
+        else:
+            idx = pd.DatetimeIndex([utc_timestamp(t, "time") for t in times])
         tos = seconds_between(idx, self.run_start)
         mean, lo, hi = self.fit.predict(tos, level=level, band=band)
         return pd.DataFrame({"activity": mean, "lower": lo, "upper": hi}, index=idx)
