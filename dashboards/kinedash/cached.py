@@ -107,7 +107,8 @@ def verdicts(url: str) -> list[tuple[str, str, str]]:
     from kinetrace.report import ReportError, collect
 
     try:
-        content = collect(store_for(url), tz=source.site_timezone())
+        tz, production_unit = source.site_settings()
+        content = collect(store_for(url), tz=tz, production_unit=production_unit)
     except ReportError:
         return []
     return [(u.unit, u.verdict.state, u.verdict.sentence) for u in content.units if u.verdict is not None]

@@ -313,12 +313,14 @@ def windows_of(flag: pd.Series) -> pd.DataFrame:
     return pd.DataFrame({"start": t[first], "end": t[ends]})
 
 
-def site_timezone(environ=None) -> str:
-    """The site's time zone from the plant configuration (``KINETRACE_CONFIG``), else UTC."""
+def site_settings(environ=None) -> tuple[str, str]:
+    """The site's time zone and production unit from the plant configuration (``KINETRACE_CONFIG``),
+    else UTC and kg/d."""
     environ = os.environ if environ is None else environ
     from kinetrace.config import load_config
 
     try:
-        return load_config(Path(environ.get("KINETRACE_CONFIG") or DEFAULT_CONFIG)).site.timezone
+        site = load_config(Path(environ.get("KINETRACE_CONFIG") or DEFAULT_CONFIG)).site
+        return site.timezone, site.production_unit
     except (KinetraceError, OSError):
-        return "UTC"
+        return "UTC", "kg/d"

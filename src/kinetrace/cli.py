@@ -293,7 +293,7 @@ def _write_report(config: Path, day=None, out: Path | None = None):
 
         shown = {u.id: unit_model(u).display_units for u in cfg.units}
         return build_report(store, folder.resolve(), day, tz=cfg.site.timezone, site=cfg.site.name,
-                            display_units=shown)
+                            display_units=shown, production_unit=cfg.site.production_unit)
     finally:
         store.close()
 
@@ -310,7 +310,7 @@ def _attention(config: Path) -> tuple[list[str], list[str]]:
 
     cfg, store = _open_store(config)
     try:
-        content = collect(store, tz=cfg.site.timezone)
+        content = collect(store, tz=cfg.site.timezone, production_unit=cfg.site.production_unit)
     except ReportError as exc:
         return [str(exc)], []
     finally:

@@ -298,3 +298,16 @@ def test_workbook_for_operations(report):
     assert wb["Daily production"]["C2"].value == "kg"                     # the units row
     assert len(wb["Daily production"]._charts) == 2                       # R-210, R-340 have daily rows
     assert len(wb["Activity"]._charts) >= 1
+
+
+def test_amounts_in_the_sites_production_unit(filled_store, tmp_path):
+    """site.production_unit = "t/d": the page gives the day's amounts in t; each number keeps its
+    stored kg and is checked against pint's conversion."""
+    files = build_report(filled_store, tmp_path, DAY, production_unit="t/d")
+    p = _Numbers()
+    p.feed(files.html.read_text(encoding="utf-8"))
+    shown = {src: text for src, _, text in p.numbers}
+    src = "daily_production|R-210|2026-11-30|production_kg"
+    want = pint.UnitRegistry().Quantity(filled_store.daily("R-210", DAY, DAY)["production_kg"].iloc[0], "kg").to("t")
+    assert p.units[src] == ("kg", "t") and shown[src] == f"{want.magnitude:,.2f} t"
+    assert "Short by" in files.html.read_text(encoding="utf-8") and " t:" in files.html.read_text(encoding="utf-8")

@@ -55,7 +55,7 @@ class ReportFiles:
 
 
 def build_report(store: Store, out_dir, day=None, *, tz: str = "UTC", site: str = "",
-                 units=None, display_units: dict | None = None) -> ReportFiles:
+                 units=None, display_units: dict | None = None, production_unit: str = "kg/d") -> ReportFiles:
     """Write the HTML page and the XLSX workbook of one production day.
 
     Parameters
@@ -72,6 +72,8 @@ def build_report(store: Store, out_dir, day=None, *, tz: str = "UTC", site: str 
         Site name shown in the heading.
     units : list of str, optional
         Units to report; default all.
+    production_unit : str
+        The site's production unit (``site.production_unit``); daily amounts are shown in its mass.
     display_units : dict, optional
         Unit id -> {SI unit: display unit}, e.g. ``{"R-220": {"m3/s": "gpm", "K": "degF"}}``: the
         unit's own instrument units for its what-if settings (see
@@ -81,7 +83,7 @@ def build_report(store: Store, out_dir, day=None, *, tz: str = "UTC", site: str 
     -------
     ReportFiles
     """
-    content = collect(store, day, tz=tz, site=site, units=units)
+    content = collect(store, day, tz=tz, site=site, units=units, production_unit=production_unit)
     content.display_units = dict(display_units or {})
     out = Path(out_dir)
     out.mkdir(parents=True, exist_ok=True)

@@ -101,6 +101,7 @@ class ReportContent:
     generated: pd.Timestamp
     last_run: dict | None
     display_units: dict = field(default_factory=dict)   # unit id -> {SI unit: the unit's instrument unit}
+    mass: str = "kg"                                     # mass unit daily amounts are shown in
 
 
 DAY_FIGURES = ("production_kg", "target_kg", "gap_kg", *GAP_PARTS, "hours_with_data")
@@ -118,6 +119,16 @@ def day_span(day: dt.date, tz: str) -> tuple[pd.Timestamp, pd.Timestamp]:
     return start.tz_convert("UTC"), end.tz_convert("UTC")
 
 
+def production_mass(production_unit: str) -> str:
+    """Mass unit of a production unit's amounts per day: ``"t/d"`` -> ``"t"``, ``"kg/h"`` -> ``"kg"``.
+
+    >>> production_mass("t/d"), production_mass("kg/h"), production_mass("lb/d")
+    ('t', 'kg', 'lb')
+    """
+    head = production_unit.split("/")[0].strip()
+    return head if head in ("t", "kg", "lb", "klb") else "kg"
+
+
 def _status(day: dict[str, Figure]) -> str:
     if not day:
         return "no data"
@@ -130,7 +141,8 @@ def _complete(watermark, day: dt.date, tz: str) -> bool:
     return watermark is None or pd.isna(watermark) or watermark >= day_span(day, tz)[1] - pd.Timedelta(hours=1)
 
 
-def _unit_report(store: Store, unit: str, day: dt.date, span, daily: pd.DataFrame, tz: str = "UTC") -> UnitReport:
+def _unit_report(store: Store, unit: str, day: dt.date, span, daily: pd.DataFrame, tz: str = "UTC",
+                 mass: str = "kg") -> UnitReport:
     rows = daily.loc[daily["unit_id"] == unit]
     today = rows.loc[rows["day"] == day]
     figs: dict[str, Figure] = {}
@@ -182,12 +194,13 @@ def _unit_report(store: Store, unit: str, day: dt.date, span, daily: pd.DataFram
     if not ur.complete and len(today):
         ur.so_far = today.iloc[0].to_dict()
     ur.verdict = build_verdict(unit, judged, done, alarms_open=ur.alarms_open, forecast=ur.forecast,
-                               so_far_row=ur.so_far)
+                               so_far_row=ur.so_far, mass=mass)
     ur.status = ur.verdict.state
     return ur
 
 
-def collect(store: Store, day=None, *, tz: str = "UTC", site: str = "", units=None) -> ReportContent:
+def collect(store: Store, day=None, *, tz: str = "UTC", site: str = "", units=None,
+            production_unit: str = "kg/d") -> ReportContent:
     """Gather the report of one production day from the store.
 
     Parameters
@@ -202,6 +215,9 @@ def collect(store: Store, day=None, *, tz: str = "UTC", site: str = "", units=No
         Site name for the heading.
     units : list of str, optional
         Units to report; default every unit with a daily row, an alarm or a watermark.
+    production_unit : str
+        The site's production unit (``site.production_unit``, a mass per time); daily amounts are
+        said in its mass (``"t/d"``: t).
 
     Returns
     -------
@@ -226,12 +242,13 @@ def collect(store: Store, day=None, *, tz: str = "UTC", site: str = "", units=No
         units = sorted(found)
     if not units:
         raise ReportError("the results store holds no units; run the daily check first")
-    reports = [_unit_report(store, u, day, span, daily_all, tz) for u in units]
+    mass = production_mass(production_unit)
+    reports = [_unit_report(store, u, day, span, daily_all, tz, mass) for u in units]
     runs = store.runs()
     done = runs.loc[runs["status"] == "complete"]
     last = done.iloc[-1].to_dict() if len(done) else None
     return ReportContent(day=day, span=span, tz=tz, site=site, units=reports,
-                         generated=pd.Timestamp.now(tz="UTC"), last_run=last)
+                         generated=pd.Timestamp.now(tz="UTC"), last_run=last, mass=mass)
 
 
 def attention_reasons(content: ReportContent) -> list[str]:

@@ -15,7 +15,7 @@ import pandas as pd
 from .content import Figure, ReportContent, UnitReport, iso
 from ..units import display
 from .charts import COLOURS, activity_chart, production_chart, to_svg
-from .wording import CAUTIONS, alarm_sentence, gap_sentence, number, quality_word, sig, when, whatif_sentence
+from .wording import CAUTIONS, alarm_sentence, gap_sentence, mass_text, number, quality_word, sig, when, whatif_sentence
 
 STATUS_CLASS = {"on target": "met", "below target": "short", "down": "down", "no data": "nodata"}
 
@@ -49,14 +49,23 @@ svg {{ max-width: 100%; height: auto; }}
 """
 
 
-def fig(f: Figure | None, decimals: int = 0, *, unit: bool = True, digits: int | None = None) -> str:
-    """HTML of one number with its store source."""
+def fig(f: Figure | None, decimals: int = 0, *, unit: bool = True, digits: int | None = None,
+        mass: str = "kg") -> str:
+    """HTML of one number with its store source; an amount in kg is shown in ``mass`` (the site's
+    production mass unit), its stored value kept in data-value."""
     if f is None:
         return "—"
-    text = sig(f.value, digits) if digits else number(f.value, decimals)
-    if unit and f.unit and f.unit != "-" and f.known:
-        text += f" {f.unit}"
-    return (f'<span class="num" data-src="{escape(f.source)}" data-value="{escape(repr(float(f.value)))}" '
+    conv = ""
+    if f.unit == "kg" and mass != "kg":
+        text = mass_text(f.value, mass)
+        if not unit:
+            text = text.rsplit(" ", 1)[0]
+        conv = f' data-si-unit="kg" data-unit="{escape(mass)}"'
+    else:
+        text = sig(f.value, digits) if digits else number(f.value, decimals)
+        if unit and f.unit and f.unit != "-" and f.known:
+            text += f" {f.unit}"
+    return (f'<span class="num" data-src="{escape(f.source)}" data-value="{escape(repr(float(f.value)))}"{conv} '
             f'title="{escape(f.source)}">{escape(text)}</span>')
 
 
@@ -64,13 +73,13 @@ def _summary_table(content: ReportContent) -> str:
     head = ("<tr><th>Unit</th><th>Status</th><th class='n'>Production</th><th class='n'>Target</th>"
             "<th class='n'>Gap</th><th class='n'>7-day production</th><th class='n'>7-day target</th>"
             "<th class='n'>Open alarms</th></tr>")
-    rows = []
+    rows, m = [], content.mass
     for u in content.units:
         rows.append(
             f"<tr><td>{escape(u.unit)}</td><td><span class='badge {STATUS_CLASS[u.status]}'>{escape(u.status)}"
-            f"</span></td><td class='n'>{fig(u.day.get('production_kg'))}</td>"
-            f"<td class='n'>{fig(u.day.get('target_kg'))}</td><td class='n'>{fig(u.day.get('gap_kg'))}</td>"
-            f"<td class='n'>{fig(u.week['production_kg'])}</td><td class='n'>{fig(u.week['target_kg'])}</td>"
+            f"</span></td><td class='n'>{fig(u.day.get('production_kg'), mass=m)}</td>"
+            f"<td class='n'>{fig(u.day.get('target_kg'), mass=m)}</td><td class='n'>{fig(u.day.get('gap_kg'), mass=m)}</td>"
+            f"<td class='n'>{fig(u.week['production_kg'], mass=m)}</td><td class='n'>{fig(u.week['target_kg'], mass=m)}</td>"
             f"<td class='n'>{len(u.alarms_open)}</td></tr>")
     return f"<table class='summary'>{head}{''.join(rows)}</table>"
 
@@ -89,13 +98,13 @@ def _production_block(u: UnitReport, content: ReportContent) -> str:
              "gap_downtime_kg": "  (c) downtime", "gap_data_kg": "  (d) data too poor to judge"}
     rows = []
     for c in ("production_kg", "target_kg", "gap_kg", *parts):
-        rows.append(f"<tr><td>{escape(names[c])}</td><td class='n'>{fig(u.day.get(c))}</td>"
-                    f"<td class='n'>{fig(u.week[c])}</td></tr>")
+        rows.append(f"<tr><td>{escape(names[c])}</td><td class='n'>{fig(u.day.get(c), mass=content.mass)}</td>"
+                    f"<td class='n'>{fig(u.week[c], mass=content.mass)}</td></tr>")
     hours = u.day.get("hours_with_data")
     head = (f"<tr><th></th><th class='n'>{escape(content.day.strftime('%d %b %Y'))}</th>"
             f"<th class='n'>7 days ({u.week_days} with data)</th></tr>")
     if "gap_kg" in u.day:
-        text = escape(gap_sentence(u.day["gap_kg"].value, {c: u.day[c].value for c in parts}))
+        text = escape(gap_sentence(u.day["gap_kg"].value, {c: u.day[c].value for c in parts}, content.mass))
         if hours is not None and hours.known:
             text += f" Hours with data: {fig(hours, 1, unit=False)}."
     else:

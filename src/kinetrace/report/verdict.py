@@ -153,7 +153,7 @@ def _streak(states: list[tuple[dt.date, str]], day: dt.date) -> tuple[int, dt.da
 
 
 def build_verdict(unit: str, day: dt.date, daily: pd.DataFrame, *, alarms_open: pd.DataFrame | None = None,
-                  forecast: dict | None = None, so_far_row=None) -> Verdict:
+                  forecast: dict | None = None, so_far_row=None, mass: str = "kg") -> Verdict:
     """The verdict of a unit for one complete production day, from stored rows only.
 
     Parameters
@@ -172,6 +172,8 @@ def build_verdict(unit: str, day: dt.date, daily: pd.DataFrame, *, alarms_open: 
         The newest forecast row: ``activity_now``, ``activity_needed`` [-], ``miss_expected`` [UTC].
     so_far_row : mapping, optional
         The daily row of the day in progress (partial), said pro rata.
+    mass : str
+        Mass unit the amounts are said in (the site's production unit's, e.g. ``"t"``).
 
     Returns
     -------
@@ -205,7 +207,9 @@ def build_verdict(unit: str, day: dt.date, daily: pd.DataFrame, *, alarms_open: 
         prod, target = _f(so_far_row.get("production_kg")), _f(so_far_row.get("target_kg"))
         if h > 0 and math.isfinite(prod) and math.isfinite(target):
             pro_rata = target * h / 24.0
-            so_far = f"{prod:,.0f} kg in {h:.0f} h against {pro_rata:,.0f} kg pro rata"
+            from .wording import mass_text
+
+            so_far = f"{mass_text(prod, mass)} in {h:.0f} h against {mass_text(pro_rata, mass)} pro rata"
     return Verdict(unit, state, day, days, since, tuple(causes), alarms, next_step, so_far, fc)
 
 

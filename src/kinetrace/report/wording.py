@@ -110,7 +110,23 @@ def whatif_sentence(row, units: dict | None = None) -> str:
     return f"No {lever} within the {limits} is estimated to meet the target."
 
 
-def gap_sentence(gap: float, parts: dict[str, float]) -> str:
+def mass_text(kg: float, mass: str = "kg") -> str:
+    """An amount in kg written in the site's production mass unit (pint), to a sensible precision.
+
+    >>> mass_text(16513.2), mass_text(16513.2, "t"), mass_text(float("nan"), "t")
+    ('16,513 kg', '16.51 t', '—')
+    """
+    if kg is None or not math.isfinite(kg):
+        return "—"
+    if mass == "kg":
+        return f"{number(kg)} kg"
+    from ..units import convert
+
+    v = float(convert(kg, "kg", mass))
+    return f"{number(v, 2 if abs(v) < 1000 else 0)} {mass}"
+
+
+def gap_sentence(gap: float, parts: dict[str, float], mass: str = "kg") -> str:
     """The day's gap and its four causes in plain, positive words (no double negatives).
 
     >>> gap_sentence(1000.0, {"gap_feed_kg": 600.0, "gap_conversion_kg": 400.0,
@@ -130,10 +146,10 @@ def gap_sentence(gap: float, parts: dict[str, float]) -> str:
     ahead = {"gap_feed_kg": "feed above plan", "gap_conversion_kg": "conversion above expectation",
              "gap_downtime_kg": "less downtime than planned", "gap_data_kg": "data correction"}
     shown = {k: v for k, v in parts.items() if math.isfinite(v) and round(v) != 0}
-    against = [f"{short[k]} {number(v)} kg" for k, v in shown.items() if v > 0]
-    helping = [f"{ahead[k]} {number(-v)} kg" for k, v in shown.items() if v < 0]
+    against = [f"{short[k]} {mass_text(v, mass)}" for k, v in shown.items() if v > 0]
+    helping = [f"{ahead[k]} {mass_text(-v, mass)}" for k, v in shown.items() if v < 0]
     main, other = (against, helping) if gap > 0 else (helping, against)
-    head = f"Short by {number(gap)} kg" if gap > 0 else f"Ahead by {number(-gap)} kg"
+    head = f"Short by {mass_text(gap, mass)}" if gap > 0 else f"Ahead by {mass_text(-gap, mass)}"
     if not main and not other:
         return head + "."
     text = head + ": " + ", ".join(main)
