@@ -238,6 +238,8 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     valid = np.empty((nb, len(names)), dtype=bool, order="F")
     rows = []
     flagged = []
+    # configured catalyst changes stop a carried lab or analyzer value (it describes the old charge)
+    resets = np.sort(np.array([_to_ns(c) for c in model.catalyst_changes], dtype=np.int64))
     for i, t in enumerate(u.tags):
         # one tag at a time, its reading buffers freed before the next: the buffers shrink as the frame fills
         ts, val, fate, second = col.arrays(i)
@@ -264,7 +266,7 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
             v, _ = align.time_weighted_mean(tg, xg, edges, _hold_limit(t, src, grid, tg))
             carried = np.zeros(nb, bool)
         else:
-            v, carried = align.sample_mean_carry(tg, xg, edges, t.max_age)
+            v, carried = align.sample_mean_carry(tg, xg, edges, t.max_age, resets)
         del tg, xg
         values[:, i] = v
         missing = np.isnan(v)
