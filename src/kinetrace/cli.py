@@ -68,13 +68,12 @@ def _fmt(x: float, spec: str) -> str:
 def _k_display(r, value: float) -> str:
     """The main reaction's k_ref in engineering units (1/h, L/(mol h), ...)."""
     from .report.names import engineering
-    from .units import rate_constant_unit
 
     m = r.model
     law = m.rate_laws.get(m.reaction_ids[0]) if m.reaction_ids else None
     if law is None or value is None or not math.isfinite(value):
         return "n/a"
-    v, unit = engineering("k_ref", value, rate_constant_unit(sum(law.params.get("orders", {}).values()) or 1.0))
+    v, unit = engineering("k_ref", value, law.k_unit)
     return f"{v:.4g} {unit}"
 
 

@@ -34,6 +34,13 @@ class RateLawModel:
     prior: bool = False                   # configured values as priors of the calibration
     source: str = "configured"            # "configured", or where the fitted values come from
 
+    @property
+    def k_unit(self) -> str:
+        """SI unit of k_ref, (m3/mol)^(n-1)/s for the law's overall order n (``units.rate_constant_unit``)."""
+        from ..units import rate_constant_unit
+
+        return rate_constant_unit(sum(self.params.get("orders", {}).values()) or 1.0)
+
 
 @dataclass(frozen=True)
 class UnitModel:

@@ -17,7 +17,6 @@ import pandas as pd
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError, KinetraceError
 from ..redact import redact_url
-from ..units import rate_constant_unit
 from .backcalc import back_calculate
 from .feed import analysed_flags, monitoring_feed
 from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
@@ -407,7 +406,7 @@ INCREMENTAL_HISTORY = "365D"
 
 def _k_unit(model: UnitModel, rid: str) -> str:
     law = model.rate_laws.get(rid)
-    return rate_constant_unit(sum(law.params.get("orders", {}).values()) or 1.0) if law is not None else "SI"
+    return law.k_unit if law is not None else "SI"
 
 
 def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str | Path | None = None,

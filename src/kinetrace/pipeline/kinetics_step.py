@@ -20,7 +20,6 @@ import pandas as pd
 
 from ..config import UnitModel
 from ..errors import KinetraceError
-from ..units import rate_constant_unit
 from ..kinetics import arrhenius, ratelaws
 from ..kinetics.estimation import compare_models, fit_rate_law
 from ..kinetics.steady import steady_windows
@@ -137,7 +136,7 @@ def _fit_at_fixed_ea(means: pd.DataFrame, law, rid: str, species: list[str]) -> 
     q = stats.t.ppf(0.975, max(n - p, 1))
     method = f"{law.method}, least squares over {n} steady stretches, activity-corrected, Ea held at configured value"
     out = []
-    k_unit = rate_constant_unit(sum(law.params.get("orders", {}).values()) or 1.0)
+    k_unit = law.k_unit
     for i, (name, unit) in enumerate([(f"k_ref_fitted:{rid}", k_unit)] + [(f"K_{sp}:{rid}", "m3/mol") for sp in ads]):
         se = float(np.sqrt(max(cov[i, i], 0.0)))
         v = float(np.exp(sol.x[i]))
@@ -201,7 +200,7 @@ def fit_history(series: pd.DataFrame, model: UnitModel, activity_trend: pd.Serie
     comparison = compare_models(fits) if len(fits) > 1 else None
     fit = fits[law.method]
     out = []
-    names = {"k_ref": (f"k_ref_fitted:{rid}", rate_constant_unit(sum(law.params.get("orders", {}).values()) or 1.0)), "activation_energy": (f"activation_energy:{rid}", "J/mol")}
+    names = {"k_ref": (f"k_ref_fitted:{rid}", law.k_unit), "activation_energy": (f"activation_energy:{rid}", "J/mol")}
     for key, value in fit.estimates.items():
         name, unit = names.get(key, (f"{key}:{rid}", "m3/mol"))
         lo, hi = fit.ci95[key]
