@@ -26,6 +26,9 @@ STATES = ("no data", "down", "below target", "on target")
 CAUSE_WORDS = {"gap_feed_kg": "feed below plan", "gap_conversion_kg": "conversion below expectation",
                "gap_downtime_kg": "downtime", "gap_data_kg": "data too poor to judge"}
 
+#: Smallest share of a run's gap [-] that a part must carry to be named as a cause.
+CAUSE_SHARE = 0.10
+
 
 def day_state(row) -> str:
     """State of one complete production day from its stored daily row.
@@ -186,7 +189,12 @@ def build_verdict(unit: str, day: dt.date, daily: pd.DataFrame, *, alarms_open: 
     if state in ("below target", "down") and day in rows:
         run = [rows[d] for d in rows if since <= d <= day]
         parts = {k: sum(_f(r.get(k)) for r in run if math.isfinite(_f(r.get(k)))) for k in CAUSE_WORDS}
-        ranked = sorted((k for k in parts if parts[k] > 0), key=lambda k: -parts[k])
+        # a part is named as a cause only when it carries a real share of the gap: a part of a few
+        # kilograms in a gap of tonnes (or the round-off of the exact split) explains nothing
+        # (common practice, no source: 10 % of the gap)
+        gap = sum(_f(r.get("target_kg")) - _f(r.get("production_kg")) for r in run)
+        floor = CAUSE_SHARE * gap if math.isfinite(gap) and gap > 0 else 0.0
+        ranked = sorted((k for k in parts if parts[k] > floor), key=lambda k: -parts[k])
         for k in ranked[:2]:
             words = CAUSE_WORDS[k]
             if k == "gap_conversion_kg" and forecast and math.isfinite(_f(forecast.get("activity_now"))) \
@@ -237,4 +245,4 @@ def _next_step(state: str, causes: list[str], alarms_open) -> str:
     return ""
 
 
-__all__ = ["CAUSE_WORDS", "STATES", "Verdict", "alarm_words", "build_verdict", "day_state"]
+__all__ = ["CAUSE_SHARE", "CAUSE_WORDS", "STATES", "Verdict", "alarm_words", "build_verdict", "day_state"]
