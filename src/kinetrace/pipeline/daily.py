@@ -218,7 +218,7 @@ def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame, *, decay_m
         # out of the trend and the charts, while production still counts every hour
         monitored = series.copy()
         monitored.loc[~monitored["steady"].astype(bool), "activity"] = np.nan
-        res = assess_unit(monitored, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
+        res = assess_unit(monitored, model, events=model.catalyst_changes, tz=cfg.site.timezone,
                           volume_limits=vol_limits, arl0=DRIFT_ARL0, plan_feed_flow=model.plan_feed_flow,
                           decay_method=decay_method, feed_conc=feed, key_feed_conc=key_feed)
         res.feed_basis = feed_text
