@@ -118,3 +118,28 @@ def test_events_section_is_read_and_merged_with_catalyst_changes():
     bad["units"][0]["events"] = [{"kind": "earthquake", "time": "2027-05-02T06:00:00Z"}]
     with pytest.raises(ConfigError, match=r"units\[0\]\.events\[0\]\.kind: Input should be .catalyst_change., .shutdown."):
         validate_config(bad, source="plant.toml")
+
+
+def test_shutdown_and_restart_restart_the_steady_windows_of_the_check():
+    from types import SimpleNamespace
+
+    from kinetrace.pipeline.backcalc import steady_mask
+
+    rng = np.random.default_rng(8)
+    n = IDX.size
+    roles = pd.DataFrame({"feed_flow": 2e-3 * (1 + 0.003 * rng.standard_normal(n)),
+                          "temperature": 350.0 + 0.05 * rng.standard_normal(n), "volume": 14.0,
+                          "outlet_conc:A": 800.0 * (1 + 0.002 * rng.standard_normal(n))}, index=IDX)
+    rate = np.full(n, 0.1)            # mol/(m3 s), far above the accumulation of the noise
+    shutdown, restart = IDX[200] + pd.Timedelta("20min"), IDX[260]
+    model = SimpleNamespace(fixed_volume=14.0, key_reactant="A", event_times=())
+    base = steady_mask(roles, model, rate)
+    assert base.iloc[190:280].all()
+    model = SimpleNamespace(fixed_volume=14.0, key_reactant="A",
+                            event_times=(shutdown.to_pydatetime(), restart.to_pydatetime()))
+    mask = steady_mask(roles, model, rate)
+    # the interval holding each event starts a new stretch, which waits for the 6-interval window
+    assert not mask.iloc[200:206].any() and not mask.iloc[260:266].any()
+    # away from the events the test says what it said without them
+    for part in (slice(0, 199), slice(210, 259), slice(270, None)):
+        assert mask.iloc[part].equals(base.iloc[part])
