@@ -22,6 +22,8 @@ from dataclasses import dataclass
 import numpy as np
 import pandas as pd
 
+from .backcalc import _utc
+
 __all__ = ["KnownFault", "known_faults", "continuing"]
 
 #: Alarm kinds of the store that name a sensor fault (see :func:`kinetrace.pipeline.daily.write_unit_findings`).
@@ -64,19 +66,16 @@ def known_faults(alarms: pd.DataFrame, before) -> tuple[KnownFault, ...]:
     """
     if alarms is None or not len(alarms):
         return ()
-    start = pd.Timestamp(before)
-    start = start.tz_localize("UTC") if start.tzinfo is None else start.tz_convert("UTC")
+    start = _utc(before)
     out = []
     for row in alarms.to_dict("records"):
         if row.get("kind") not in FAULT_KINDS or row.get("state") != "open":
             continue
-        detected = pd.Timestamp(row["detected"])
-        detected = detected.tz_localize("UTC") if detected.tzinfo is None else detected.tz_convert("UTC")
+        detected = _utc(row["detected"])
         mag = float(row.get("magnitude", np.nan))
         if detected >= start or not np.isfinite(mag) or mag == 0:
             continue
-        onset = pd.Timestamp(row["onset"]) if row.get("onset") is not None else detected
-        onset = onset.tz_localize("UTC") if onset.tzinfo is None else onset.tz_convert("UTC")
+        onset = _utc(row["onset"]) if pd.notna(row.get("onset")) else detected
         out.append(KnownFault(str(row["variable"]), int(np.sign(mag)), onset, detected, mag))
     return tuple(out)
 
@@ -166,7 +165,7 @@ def whole_event_size(prior: KnownFault, relative: float, relative_sd: float, win
     >>> round(rel, 5), round(sd, 5)
     (0.05006, 0.00014)
     """
-    start = pd.Timestamp(window_start)
+    start = _utc(window_start)
     hist = max(0.0, (start - prior.onset).total_seconds() / step) if step > 0 else 0.0
     n = max(int(window_rows), 1)
     whole = hist + n
