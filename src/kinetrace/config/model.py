@@ -65,6 +65,7 @@ class UnitModel:
     plan_feed_flow: float | None = None       # [m^3/s], from [units.plan]
     catalysed: tuple[str, ...] | None = None  # reactions the catalyst activity multiplies (None: all with a law)
     catalyst_changes: tuple = ()              # configured catalyst changes (UTC timestamps)
+    events: tuple = ()                        # (kind, time, note) of [[units.events]], time-ordered
     decay_law: str = "auto"                   # decay family of the joint calibration
     correlations: tuple = ()                  # (tag_a, tag_b, rho) of correlated measurement errors [-]
     flowsheet: object = None                  # schema.Flowsheet of [units.flowsheet], or None
@@ -91,6 +92,15 @@ class UnitModel:
         if self.catalysed is not None:
             return tuple(self.catalysed)
         return tuple(r for r in self.reaction_ids if r in self.rate_laws)
+
+    @property
+    def event_times(self) -> tuple:
+        """Times of every configured event, catalyst changes included (sorted, as configured).
+
+        Each stops a carried-forward lab value or feed assay and restarts the steady windows.
+        """
+        times = {*self.catalyst_changes, *(t for _, t, _ in self.events)}
+        return tuple(sorted(times, key=_sort_key))
 
     @property
     def display_units(self) -> dict[str, str]:
@@ -251,9 +261,20 @@ def unit_model(unit: Unit) -> UnitModel:
         fresh_period=unit.activity.fresh_period,
         plan_feed_flow=None if unit.plan is None else unit.plan.feed_flow,
         catalysed=None if unit.activity.catalysed is None else tuple(unit.activity.catalysed),
-        catalyst_changes=tuple(unit.activity.catalyst_changes), decay_law=unit.activity.decay_law,
+        catalyst_changes=tuple(sorted({*unit.activity.catalyst_changes,
+                                       *(e.time for e in unit.events if e.kind == "catalyst_change")},
+                                      key=_sort_key)),
+        events=tuple(sorted(((e.kind, e.time, e.note) for e in unit.events), key=lambda e: _sort_key(e[1]))),
+        decay_law=unit.activity.decay_law,
         correlations=tag_correlations(unit), flowsheet=unit.flowsheet,
     )
+
+
+def _sort_key(t):
+    """A configured time as POSIX seconds (a time without a zone is UTC). [s]"""
+    from datetime import timezone
+
+    return (t if t.tzinfo is not None else t.replace(tzinfo=timezone.utc)).timestamp()
 
 
 def parse_uncertainty(spec: dict[str, str]) -> dict[str, float]:

@@ -323,6 +323,21 @@ class Activity(_Strict):
     decay_law: Literal["auto", "linear", "exponential", "hyperbolic", "nth_order"] = "auto"
 
 
+#: Kinds of configured plant event (``[[units.events]]``). Every kind stops a carried-forward lab
+#: value or feed assay and restarts the steady windows; a catalyst change also restarts the catalyst
+#: trend and the monitoring charts (:mod:`kinetrace.config.model`, ``UnitModel.events``).
+EventKind = Literal["catalyst_change", "shutdown", "restart", "feed_change", "analyzer_service", "other"]
+EVENT_KINDS = EventKind.__args__
+
+
+class Event(_Strict):
+    """A known event in a unit's operation, e.g. ``{kind = "shutdown", time = "2027-05-02T06:00:00Z"}``."""
+
+    kind: EventKind
+    time: datetime
+    note: str = ""
+
+
 class Unit(_Strict):
     """One reactor."""
 
@@ -341,6 +356,7 @@ class Unit(_Strict):
     activity: Activity = Activity()
     plan: Plan | None = None
     density: Density | None = None
+    events: list[Event] = Field(default_factory=list)
 
     @field_validator("species")
     @classmethod

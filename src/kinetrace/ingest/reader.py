@@ -238,8 +238,9 @@ def assemble(cfg, u: Unit, model: UnitModel, scales, col: Collector, report: dic
     valid = np.empty((nb, len(names)), dtype=bool, order="F")
     rows = []
     flagged = []
-    # configured catalyst changes stop a carried lab or analyzer value (it describes the old charge)
-    resets = np.sort(np.array([_to_ns(c) for c in model.catalyst_changes], dtype=np.int64))
+    # configured events (catalyst change, shutdown, restart, feed change ...) stop a carried lab value
+    # or feed assay: a sample taken at or before one describes the plant before it
+    resets = np.sort(np.array([_to_ns(c) for c in model.event_times], dtype=np.int64))
     for i, t in enumerate(u.tags):
         # one tag at a time, its reading buffers freed before the next: the buffers shrink as the frame fills
         ts, val, fate, second = col.arrays(i)

@@ -374,6 +374,7 @@ def detect_steady(
     critical_value: float | None = None,
     key_variables: list[str] | None = None,
     max_gap: int = 0,
+    restarts=None,
     **params: Any,
 ) -> SteadyStateResult:
     """Steady-state windows of a unit from its key process variables.
@@ -399,6 +400,11 @@ def detect_steady(
         Runs of at most this many "transient" samples between two steady runs
         are taken as steady (bridges isolated false alarms; samples where a
         key variable is NaN are never bridged). Default 0 (off). [samples]
+    restarts : array_like of int, optional
+        Positions of samples at which the test starts afresh (a configured event such as a
+        shutdown, a restart or a catalyst change): no statistic, bridge or window reaches back
+        across one, so the first samples after it wait for the test's own warm-up (``window``
+        samples, or the filters' warm-up) before they can be steady. [samples]
     **params
         ``cao_rhinehart``: l1, l2, l3, warmup. ``drift_variance``: window
         [samples], alpha, max_drift [unit of each variable, scalar or
@@ -454,14 +460,33 @@ def detect_steady(
             )
         frame = frame[list(key_variables)]
     frame = frame.astype(float)
-    stat, flags, crit = runner(frame, critical_value, params)
+    cuts = np.unique(np.clip(np.asarray([] if restarts is None else restarts, dtype=int), 0, len(frame)))
+    cuts = [0, *[int(c) for c in cuts if 0 < c < len(frame)], len(frame)]
+    if len(cuts) == 2:
+        stat, flags, crit = runner(frame, critical_value, params)
+    else:
+        if method == "drift_variance" and params.get("noise_std") is None:
+            # one noise level for the whole record (successive differences hardly see a few steps)
+            params = {**params, "noise_std": _robust_noise_std(frame.to_numpy(dtype=float))}
+        parts = [runner(frame.iloc[a:b], critical_value, params) for a, b in zip(cuts[:-1], cuts[1:])]
+        stat = pd.concat([p[0] for p in parts])
+        flags = pd.concat([p[1] for p in parts])
+        crit = parts[0][2]
     unit = flags.all(axis=1)
     if max_gap > 0:
-        unit = _bridge(unit, frame.notna().all(axis=1).to_numpy(), int(max_gap))
-    windows = steady_windows(unit, min_duration)
+        finite = frame.notna().all(axis=1).to_numpy().copy()
+        finite[cuts[1:-1]] = False          # never bridged across a restart
+        unit = _bridge(unit, finite, int(max_gap))
     final = np.zeros(len(frame), dtype=bool)
-    for start, stop in zip(windows["start_pos"], windows["stop_pos"]):
-        final[start:stop] = True
+    found = []
+    for a, b in zip(cuts[:-1], cuts[1:]):       # windows end at a restart
+        w = steady_windows(unit.iloc[a:b], min_duration)
+        w["start_pos"] += a
+        w["stop_pos"] += a
+        found.append(w)
+        for start, stop in zip(w["start_pos"], w["stop_pos"]):
+            final[start:stop] = True
+    windows = pd.concat(found, ignore_index=True) if len(found) > 1 else found[0]
     return SteadyStateResult(
         mask=pd.Series(final, index=frame.index, name="steady"),
         windows=windows,

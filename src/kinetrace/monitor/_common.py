@@ -91,3 +91,20 @@ def format_range(a: pd.Timestamp, b: pd.Timestamp) -> str:
     if a.year == b.year:
         return f"{a.day} {a:%B} - {b.day} {b:%B %Y}"
     return f"{format_day(a)} - {format_day(b)}"
+
+
+def restart_positions(index: pd.DatetimeIndex, events: Any, name: str = "restart") -> np.ndarray:
+    """Positions of the first observation at or after each event (0 < position < len(index)). [-]
+
+    A chart or a step window that restarts there never mixes observations from before an
+    event with those after it.
+
+    >>> idx = pd.date_range("2027-01-01", periods=4, freq="h", tz="UTC")
+    >>> restart_positions(idx, ["2027-01-01 01:30", "2027-01-01 00:00", "2027-02-01"]).tolist()
+    [2]
+    """
+    if events is None or not len(events) or not len(index):
+        return np.zeros(0, dtype=int)
+    ev = pd.DatetimeIndex([utc_timestamp(e, name) for e in events])
+    pos = np.unique(index.searchsorted(ev, side="left"))
+    return pos[(pos > 0) & (pos < len(index))]

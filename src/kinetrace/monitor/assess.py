@@ -164,7 +164,8 @@ def assess_unit(
     model : UnitModel
         The unit.
     events : sequence of timestamps
-        Known catalyst changes.
+        Known catalyst changes: the trend restarts there, and the step detector and the EWMA
+        and CUSUM charts start afresh there instead of signalling on them.
     plan_feed_flow : float, optional
         Plan feed flow [m^3/s] for the gap attribution; default: the expected yield
         is the fresh-catalyst model's at the present operating point, and the plan
@@ -252,14 +253,16 @@ def assess_unit(
         except KinetraceError as exc:
             problems.append(f"activity trend: {exc}")
         if act.notna().sum() >= 12:
-            alarms += detect_steps(act.dropna(), name="activity", min_size=min_step)
+            # a configured catalyst change is a known step: the windows restart there instead
+            alarms += detect_steps(act.dropna(), name="activity", min_size=min_step, resets=events)
         if trend is not None and trend.residuals.notna().sum() >= 20:
             # hourly residuals are autocorrelated (feed wander, slow analyser drift): chart the AR(1)
             # innovations so that the in-control run length is the one the limits were set for
             try:
-                inn, _ = ar1_innovations(trend.residuals.reindex(series.index))
-                for func in (cusum_alarms, ewma_alarms):
-                    res = func(inn.dropna(), mean=0.0, sigma=1.0, arl0=arl0, name="activity residual")
+                inn, _ = ar1_innovations(trend.residuals.reindex(series.index), restarts=events)
+                for func in (cusum_alarms, ewma_alarms):   # restarted at each configured catalyst change
+                    res = func(inn.dropna(), mean=0.0, sigma=1.0, arl0=arl0, name="activity residual",
+                               restarts=events)
                     charts.append(res)
                     alarms += res.alarms
             except KinetraceError as exc:

@@ -60,7 +60,7 @@ import numpy as np
 import pandas as pd
 
 from kinetrace.errors import DataQualityError, KinetraceError
-from kinetrace.monitor._common import float_values, utc_index
+from kinetrace.monitor._common import float_values, restart_positions, utc_index
 from kinetrace.monitor.alarms import Alarm, span, when
 from kinetrace.monitor.arl import cusum_arl, cusum_limit_for_arl, ewma_arl, ewma_limit_for_arl
 from kinetrace.monitor.chart_statistics import cusum_statistic, ewma_limits, ewma_statistic, list_ewma_limit_methods
@@ -127,7 +127,7 @@ def in_control_estimates(values, reference=None) -> tuple[float, float]:
     return float(r.mean()), sigma
 
 
-def ar1_innovations(values: pd.Series, *, max_gap: int = 1) -> tuple[pd.Series, float]:
+def ar1_innovations(values: pd.Series, *, max_gap: int = 1, restarts=()) -> tuple[pd.Series, float]:
     """Standardised one-step-ahead innovations of an AR(1) model, for charting autocorrelated data.
 
     e_t = (x_t - m) - phi (x_{t-1} - m), with m the mean and phi the lag-1
@@ -141,6 +141,9 @@ def ar1_innovations(values: pd.Series, *, max_gap: int = 1) -> tuple[pd.Series, 
         Observations on a regular UTC grid. [unit of the series] NaN breaks the chain.
     max_gap : int
         Largest index step (in grid rows) still counted as consecutive.
+    restarts : sequence of timestamps
+        Known events (a configured catalyst change): the first observation at or after one has
+        no predecessor (its innovation is NaN), so the chain does not run across it. [UTC]
 
     Returns
     -------
@@ -171,8 +174,11 @@ def ar1_innovations(values: pd.Series, *, max_gap: int = 1) -> tuple[pd.Series, 
     m = np.nanmean(v)
     d = v - m
     prev = np.r_[np.nan, d[:-1]]
+    cut = restart_positions(values.index, restarts)
+    prev[cut] = np.nan                                  # no predecessor across a known event
     if max_gap > 1:
-        prev = pd.Series(np.r_[np.nan, d[:-1]]).ffill(limit=max_gap - 1).to_numpy()
+        seg = np.searchsorted(cut, np.arange(v.size), side="right")
+        prev = pd.Series(prev).groupby(seg).ffill(limit=max_gap - 1).to_numpy()
     pair = np.isfinite(d) & np.isfinite(prev)
     if pair.sum() < 10:
         raise DataQualityError(f"need at least 10 pairs of consecutive observations for AR(1), got {int(pair.sum())}")
@@ -229,6 +235,11 @@ def _prepare(values, mean, sigma, reference, name):
     return idx[ok], (v[ok] - mean) / sigma, float(mean), float(sigma), int((~ok).sum())
 
 
+def _segment_ends(idx: pd.DatetimeIndex, restarts, n: int) -> np.ndarray:
+    """Positions where a chart starts afresh because of a known event, and ``n``. [-]"""
+    return np.r_[restart_positions(idx, restarts), n]
+
+
 def _mle_change_point(x: np.ndarray, end: int) -> int:
     """Index of the first changed observation in x[0..end] (step in mean, mu0 = 0)."""
     seg = x[: end + 1]
@@ -249,6 +260,7 @@ def ewma_alarms(
     name: str = "activity",
     limits: str = "exact",
     fir: float | None = None,
+    restarts=(),
 ) -> ChartResult:
     """Two-sided EWMA chart of a series, with change-point and size estimates for each alarm.
 
@@ -280,6 +292,10 @@ def ewma_alarms(
         the start (lambda = 0.1, L = 2.814, f = 0.5: an alarm within 400 in-control
         observations in 67 % of simulated runs instead of 55 %); give a wider ``limit``
         to keep the in-control run length.
+    restarts : sequence of timestamps
+        Known events (a configured catalyst change): the chart starts afresh at the first
+        observation at or after each, as it does after a signal, instead of signalling on the
+        event. [UTC]
 
     Returns
     -------
@@ -311,18 +327,21 @@ def ewma_alarms(
     z_all, lim_all = np.empty_like(x), np.empty_like(x)
     alarms: list[Alarm] = []
     start = 0
+    ends = _segment_ends(idx, restarts, x.size)
     while start < x.size:
-        z = ewma_statistic(x[start:], lam)
+        end = int(ends[np.searchsorted(ends, start, side="right")])     # the next restart (or the end)
+        z = ewma_statistic(x[start:end], lam)
         hz_run = half[: z.size]
         hit = np.flatnonzero(np.abs(z) > hz_run)
-        stop = x.size if hit.size == 0 else start + hit[0] + 1
+        stop = end if hit.size == 0 else start + hit[0] + 1
         z_all[start:stop] = z[: stop - start]
         lim_all[start:stop] = hz_run[: stop - start]
         if hit.size == 0:
-            break
+            start = stop
+            continue
         d = hit[0]
         hz = float(hz_run[d])
-        seg = x[start:]
+        seg = x[start:end]
         tau = _mle_change_point(seg, d)
         shift = float(seg[tau : d + 1].mean())
         direction = "up" if z[d] > 0 else "down"
@@ -355,6 +374,7 @@ def cusum_alarms(
     reference=None,
     name: str = "activity",
     head_start: float = 0.0,
+    restarts=(),
 ) -> ChartResult:
     """Two-sided tabular CUSUM of a series, with onset and size estimates for each alarm.
 
@@ -376,6 +396,8 @@ def cusum_alarms(
         Fast initial response: C+ and C- start at this value after the start and after
         every restart, 0 <= head_start < h; h/2 is usual (Lucas & Crosier 1982). h is not
         changed by it; the reported ARL0 is that of the chart with the head start. [sigma]
+    restarts : sequence of timestamps
+        As in :func:`ewma_alarms`: the chart starts afresh (with its head start) at each. [UTC]
 
     Returns
     -------
@@ -408,13 +430,16 @@ def cusum_alarms(
     up_all, dn_all = np.empty_like(x), np.empty_like(x)
     alarms: list[Alarm] = []
     start = 0
+    ends = _segment_ends(idx, restarts, x.size)
     while start < x.size:
-        up, dn = cusum_statistic(x[start:], k, start_upper=head_start, start_lower=head_start)
+        end = int(ends[np.searchsorted(ends, start, side="right")])     # the next restart (or the end)
+        up, dn = cusum_statistic(x[start:end], k, start_upper=head_start, start_lower=head_start)
         hit = np.flatnonzero((up > h) | (dn > h))
-        stop = x.size if hit.size == 0 else start + hit[0] + 1
+        stop = end if hit.size == 0 else start + hit[0] + 1
         up_all[start:stop], dn_all[start:stop] = up[: stop - start], dn[: stop - start]
         if hit.size == 0:
-            break
+            start = stop
+            continue
         d = hit[0]
         is_up = up[d] > h
         stat = up if is_up else dn

@@ -31,7 +31,7 @@ import pandas as pd
 from scipy import stats
 
 from kinetrace.errors import DataQualityError, KinetraceError
-from kinetrace.monitor._common import utc_index
+from kinetrace.monitor._common import restart_positions, utc_index
 from kinetrace.monitor.alarms import Alarm, when
 
 __all__ = ["detect_steps", "robust_sigma"]
@@ -68,14 +68,19 @@ def robust_sigma(values) -> float:
     return float(np.median(np.abs(np.diff(v))) / (np.sqrt(2.0) * stats.norm.ppf(0.75)))
 
 
-def _window_sums(v: np.ndarray, w: int):
+def _window_sums(v: np.ndarray, w: int, resets: np.ndarray | None = None):
     ok = np.isfinite(v)
     cs = np.r_[0.0, np.cumsum(np.where(ok, v, 0.0))]
     cn = np.r_[0, np.cumsum(ok)]
     n = v.size
     t = np.arange(n)
-    a0, a1 = t, np.minimum(t + w, n)          # after: [t, t + w)
-    b0, b1 = np.maximum(t - w, 0), t          # before: [t - w, t)
+    lo, hi = np.zeros(n, dtype=int), np.full(n, n)     # the stretch between resets holding t
+    if resets is not None and resets.size:
+        k = np.searchsorted(resets, t, side="right")
+        bounds = np.r_[0, resets, n]
+        lo, hi = bounds[k], bounds[k + 1]
+    a0, a1 = t, np.minimum(t + w, hi)         # after: [t, t + w), not past the next reset
+    b0, b1 = np.maximum(t - w, lo), t         # before: [t - w, t), not before the last one
     return cs[a1] - cs[a0], cn[a1] - cn[a0], cs[b1] - cs[b0], cn[b1] - cn[b0]
 
 
@@ -89,6 +94,7 @@ def detect_steps(
     alpha: float = 0.01,
     direction: str = "both",
     name: str = "activity",
+    resets=(),
 ) -> list[Alarm]:
     """Sudden steps in the mean of a series.
 
@@ -111,6 +117,10 @@ def detect_steps(
         Steps looked for.
     name : str
         Name of the series in the alarm texts.
+    resets : sequence of timestamps
+        Known events (a configured catalyst change): the windows on either side of a candidate
+        step never reach across one, so a configured event is not reported as a step, and the
+        first observation at or after it is no candidate. [UTC]
 
     Returns
     -------
@@ -147,7 +157,7 @@ def detect_steps(
     n_pos = max(v.size - 2 * w + 1, 1)
     if z_crit is None:
         z_crit = float(stats.norm.isf(alpha / (2.0 * n_pos)))
-    sa, na, sb, nb = _window_sums(v, w)
+    sa, na, sb, nb = _window_sums(v, w, restart_positions(idx, resets, "reset"))
     need = (w + 1) // 2
     good = (na >= need) & (nb >= need)
     with np.errstate(invalid="ignore", divide="ignore"):

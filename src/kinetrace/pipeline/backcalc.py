@@ -58,9 +58,38 @@ def _conc_matrix(roles: pd.DataFrame, model: UnitModel, role: str) -> np.ndarray
                             for c in cols])
 
 
+def restart_positions(index: pd.DatetimeIndex, events, step: float) -> np.ndarray:
+    """Positions of the first interval of ``index`` that ends after each event (the interval
+    holding the event starts the new stretch). [rows]
+
+    Parameters
+    ----------
+    index : DatetimeIndex
+        Interval starts (UTC), sorted.
+    events : sequence of timestamps
+        Event times (UTC; a time without a zone is UTC).
+    step : float
+        Interval length. [s]
+
+    Returns
+    -------
+    ndarray of int
+        Sorted, unique; ``len(index)`` for an event after the last interval.
+
+    >>> idx = pd.date_range("2027-01-01", periods=6, freq="h", tz="UTC")
+    >>> restart_positions(idx, ["2027-01-01 02:00", "2027-01-01 03:30Z"], 3600.0).tolist()
+    [2, 3]
+    """
+    if not len(events) or not len(index):
+        return np.zeros(0, dtype=int)
+    ends = (index + pd.Timedelta(seconds=step)).as_unit("ns").asi8
+    ev = np.array([_utc(e).value for e in events], dtype=np.int64)
+    return np.unique(np.searchsorted(ends, ev, side="right"))
+
+
 def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumulation: float = 0.02,
                 method: str = "drift_variance", window: int = 6, critical_value: float = 1.73,
-                min_duration: int = 3, derivative_window: int = 5) -> pd.Series:
+                min_duration: int = 3, derivative_window: int = 5, events=None) -> pd.Series:
     """Rows where the steady-state design equation may be trusted.
 
     Two conditions, both needed:
@@ -103,6 +132,12 @@ def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumula
         Shortest steady run kept. [rows]
     derivative_window : int
         Savitzky-Golay window. [rows]
+    events : sequence of timestamps, optional
+        Times at which the steady-state test starts afresh; default every configured event of
+        the unit (``model.event_times``: catalyst changes, shutdowns, restarts, feed changes ...).
+        The interval holding an event is the first of the new stretch, so the first ``window``
+        intervals after it are never steady (common practice, no source: a known upset ends a
+        steady window whatever the test says).
 
     Returns
     -------
@@ -119,14 +154,16 @@ def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumula
     ok = data.notna().all(axis=1)
     if ok.sum() < 10:
         return false
+    dt = float((idx[1] - idx[0]).total_seconds())
+    restarts = restart_positions(data.index[ok], model.event_times if events is None else events, dt)
     if method == "cao_rhinehart":
-        res = detect_steady(data[ok], method=method, min_duration=1, critical_value=critical_value, max_gap=2)
+        res = detect_steady(data[ok], method=method, min_duration=1, critical_value=critical_value, max_gap=2,
+                            restarts=restarts)
     else:
-        res = detect_steady(data[ok], method=method, min_duration=1, max_gap=2, window=window)
+        res = detect_steady(data[ok], method=method, min_duration=1, max_gap=2, window=window, restarts=restarts)
     inputs_steady = res.mask.reindex(idx, fill_value=False).to_numpy(dtype=bool)
     ca = roles[role_column("outlet_conc", model.key_reactant)].to_numpy(dtype=float)
     vol = roles["volume"].to_numpy(dtype=float)
-    dt = float((idx[1] - idx[0]).total_seconds())
     dca = smoothed_derivative(ca, dt, derivative_window)
     dv = smoothed_derivative(vol, dt, derivative_window)
     with np.errstate(invalid="ignore", divide="ignore"):
@@ -135,6 +172,8 @@ def steady_mask(roles: pd.DataFrame, model: UnitModel, key_rate, *, max_accumula
     # the variance-ratio test is causal and lags the start of a transient: looking back over the
     # record, a row counts as steady only when its neighbours do too (erosion by one row)
     good = good & np.concatenate([[False], good[:-1]]) & np.concatenate([good[1:], [False]])
+    cut = restart_positions(idx, model.event_times if events is None else events, dt)
+    good[cut[cut < len(idx)]] = False        # no steady run spans an event
     runs = steady_windows(pd.Series(good, index=idx), min_duration=min_duration)
     mask = np.zeros(len(idx), dtype=bool)
     for start, stop in zip(runs["start_pos"], runs["stop_pos"]):

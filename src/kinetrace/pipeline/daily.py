@@ -20,6 +20,7 @@ from ..redact import redact_url
 from .backcalc import back_calculate
 from .feed import analysed_flags, monitoring_feed
 from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
+from .fault_history import known_faults as stored_faults
 from .kinetics_step import fit_history, k_ref_band
 from .network_step import flowsheet_columns
 from .reconciliation import reconcile_unit
@@ -49,7 +50,7 @@ class UnitResult:
 
 def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, until=None,
                history: pd.DataFrame | None = None, fresh_k_ref: dict | None = None,
-               keep_from=None) -> UnitResult:
+               keep_from=None, known_faults=()) -> UnitResult:
     """Run the check of one unit: ingest, reconciliation, back-calculation, kinetics, monitoring.
 
     Parameters
@@ -68,6 +69,9 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     keep_from : Timestamp, optional
         Rows before it (read only as context for the steady-state test and the derivatives)
         are dropped from the new results. [UTC]
+    known_faults : sequence of KnownFault
+        Open sensor alarms of the store detected before the window
+        (:func:`kinetrace.pipeline.fault_history.known_faults`).
     """
     from ..ingest import read_unit
 
@@ -78,7 +82,7 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
         raise UnitNotCheckable(verdict, data, roles)
     measured = back_calculate(roles, model, fresh_k_ref=fresh_k_ref)
     result = finish_unit(cfg, model, roles, measured, data.quality, history=history,
-                         fresh_k_ref=fresh_k_ref, keep_from=keep_from, data=data)
+                         fresh_k_ref=fresh_k_ref, keep_from=keep_from, data=data, known_faults=known_faults)
     if result.calibration is not None:
         result.data = data
     return result
@@ -86,7 +90,7 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
 
 def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measured: pd.DataFrame,
                 quality: pd.DataFrame, *, history: pd.DataFrame | None = None,
-                fresh_k_ref: dict | None = None, keep_from=None, data=None) -> UnitResult:
+                fresh_k_ref: dict | None = None, keep_from=None, data=None, known_faults=()) -> UnitResult:
     """The check of one unit after ingest: reconciliation, calibration, re-derivation, monitoring.
 
     :func:`check_unit` calls it on the rows it read; a backfill calls it once per unit on the
@@ -103,13 +107,13 @@ def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measure
         ``steady`` column is the steady-state mask used throughout. [SI]
     quality : DataFrame
         Per-tag data-quality summary of the readings. [counts]
-    history, fresh_k_ref, keep_from
+    history, fresh_k_ref, keep_from, known_faults
         As for :func:`check_unit`.
     data : UnitData, optional
         The readings as read (for a ``[units.flowsheet]``: its stream meters are not in ``roles``);
         a backfill passes none, and a flowsheet's columns are then left out.
     """
-    rec = reconcile_unit(roles, model, steady=measured["steady"])
+    rec = reconcile_unit(roles, model, steady=measured["steady"], known_faults=known_faults)
     series = back_calculate(rec.roles, model, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
     series = series.join(rec.frame)
     old = None
@@ -218,7 +222,7 @@ def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame, *, decay_m
         # out of the trend and the charts, while production still counts every hour
         monitored = series.copy()
         monitored.loc[~monitored["steady"].astype(bool), "activity"] = np.nan
-        res = assess_unit(monitored, model, events=unit_cfg.activity.catalyst_changes, tz=cfg.site.timezone,
+        res = assess_unit(monitored, model, events=model.catalyst_changes, tz=cfg.site.timezone,
                           volume_limits=vol_limits, arl0=DRIFT_ARL0, plan_feed_flow=model.plan_feed_flow,
                           decay_method=decay_method, feed_conc=feed, key_feed_conc=key_feed)
         res.feed_basis = feed_text
@@ -473,6 +477,10 @@ def run_check(config_path: str | Path, *, since=None, until=None, out_dir: str |
                           fresh_k_ref=fresh or None, keep_from=keep_from)
         else:
             kwargs = dict(since=since)
+        before = kwargs.get("keep_from", kwargs.get("since"))
+        if db is not None and before is not None:
+            # sensor faults are judged with the store's open alarms beside the window's data
+            kwargs["known_faults"] = stored_faults(db.alarms(units=[model.id], state="open"), before)
         try:
             res = _check_or_verdict(cfg, model, config_path=config_path, until=until, **kwargs)
         except IngestError as exc:

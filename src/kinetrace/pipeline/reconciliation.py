@@ -43,6 +43,7 @@ from ..reconcile import UnobservableError
 from ..reconcile.serial_error import location_standard_error
 from .backcalc import _utc
 from .derivatives import smoothed_derivative
+from .fault_history import continuing, whole_event_size
 from .roles import role_column
 
 
@@ -149,7 +150,8 @@ def packed_correlations(model: UnitModel) -> dict | None:
 
 def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: int = 5,
                    min_fault_duration: str | None = None, fault_allowance: float = 1.0,
-                   fault_threshold: float = 5.0, sigma: str = "data", steady=None) -> ReconcileOutput:
+                   fault_threshold: float = 5.0, sigma: str = "data", steady=None,
+                   known_faults=()) -> ReconcileOutput:
     """Reconcile one unit's role frame; see the module docstring for the outputs.
 
     Parameters
@@ -179,6 +181,11 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
         k = 1 aims at shifts of about 2 standard deviations: hourly means of a slowly
         wandering process are autocorrelated, and a smaller allowance turns the wander of
         an unanalysed feed into false "biases".
+    known_faults : sequence of KnownFault
+        Open sensor alarms of the store detected before the window
+        (:mod:`kinetrace.pipeline.fault_history`): a fault under way when the window opens is
+        put on the sensor an open alarm of the same sign names, with that alarm's onset and
+        detection time.
 
     Returns
     -------
@@ -282,7 +289,8 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
     if min_fault_duration is None:
         ages = [t.max_age for t in model.tags if t.sampling == "lab" and t.max_age]
         min_fault_duration = pd.Timedelta(seconds=max(ages, default=0.0)) + pd.Timedelta("6h")
-    faults = _faults(res, solve, idx, names, role_of, model, min_fault_duration, fault_allowance, fault_threshold)
+    faults = _faults(res, solve, idx, names, role_of, model, min_fault_duration, fault_allowance, fault_threshold,
+                     known=known_faults)
     # serial elimination over each fault's window: the faulty sensor is set aside and the rest
     # reconciled again, so the reconciled values no longer carry its bias
     out["sensor_excluded"] = 0.0
@@ -308,7 +316,7 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
     return ReconcileOutput(out, rec_roles, faults, sigma_source=sigma_source)
 
 
-def _faults(res, solve, idx, names, role_of, model, min_duration, k, h) -> list[SensorFault]:
+def _faults(res, solve, idx, names, role_of, model, min_duration, k, h, known=()) -> list[SensorFault]:
     # every measured quantity takes part (online tags, lab results, feed specifications), but
     # only a quantity read online can be named a sensor fault: a lab result is one sample, and
     # a specification is no sensor. Where a specification or a lab result explains the data as
@@ -355,14 +363,22 @@ def _faults(res, solve, idx, names, role_of, model, min_duration, k, h) -> list[
         sensors = [c for c in sensors if c in estimates]
         if not sensors:
             continue
-        chosen = _which_moved(res, names, sensors, estimates, ev.onset_index, idx)
+        # a fault under way when the window opens continues an open stored alarm of the same sign
+        prior = continuing(known, sensors, lambda c: ", ".join(
+            t.tag for t in model.tags if _role_of_tag(t) == role_of[c]) or role_of[c], estimates, ev.onset_index)
+        chosen = prior[0] if prior else _which_moved(res, names, sensors, estimates, ev.onset_index, idx)
+        onset, alarm = (prior[1].onset, prior[1].detected) if prior else (_utc(ev.onset_time), _utc(ev.alarm_time))
         mag, sd, scale = estimates[chosen]
+        if prior and scale:   # the size since the stored onset: the stored part and the window's
+            rel, rel_sd = whole_event_size(prior[1], mag / scale, sd / scale, ev.end_index - ev.onset_index + 1,
+                                           idx[0], (idx[1] - idx[0]).total_seconds() if len(idx) > 1 else 3600.0)
+            mag, sd = rel * scale, rel_sd * scale
         role = role_of[chosen]
         others = [e for e in candidates if e != chosen and e in estimates]
         ambiguous = any(role_of[e] not in online for e in others)
         faults.append(SensorFault(
             role=role, tags=tuple(t.tag for t in model.tags if _role_of_tag(t) == role),
-            onset=_utc(ev.onset_time), alarm=_utc(ev.alarm_time), end=_utc(ev.end_time),
+            onset=onset, alarm=alarm, end=_utc(ev.end_time),
             magnitude=mag, relative=mag / scale if scale else float("nan"), magnitude_sd=sd,
             equivalent=tuple(role_of[e] for e in others),
             alternatives={_describe(role_of[e], model): estimates[e][0] / estimates[e][2] for e in others},
