@@ -67,6 +67,8 @@ RATE_INTERVENTION = 0.05
 #: understates the error to come, calling a step a drift brings the lab check forward, so near-ties
 #: go to the drift (a prior odds of e = exp(2/2) to 1; a design choice, no source). [-]
 DRIFT_MARGIN = 2.0
+#: Fewest lab samples after a change that can show a drift (two points always lie on a ramp). [-]
+MIN_DRIFT_SAMPLES = 3
 #: |estimate| / standard error below which a segment's bias and rate count as zero. [-]
 ZERO_Z = 3.0
 
@@ -340,7 +342,8 @@ def _classify(t, z, sd, first, last, prev_bias, lo):
     b = int(np.argmin(chi))
     tau, rate, chi_ramp = float(taus[b]), float(rates[b]), float(chi[b])
     rate_sd = float(1.0 / np.sqrt(sxx[b])) if sxx[b] > 0 else np.inf
-    if chi_ramp < chi_step + DRIFT_MARGIN and abs(rate) >= ZERO_Z * rate_sd:
+    if (seg.sum() >= MIN_DRIFT_SAMPLES and chi_ramp < chi_step + DRIFT_MARGIN
+            and abs(rate) >= ZERO_Z * rate_sd):
         span = tt[seg][-1] - tau
         return "drift", prev_bias + rate * span, rate_sd * span, rate, rate_sd, tau
     if abs(level) < ZERO_Z * level_sd:

@@ -1,0 +1,78 @@
+"""An analyzer drifting against the lab, end to end on a plant of the tests' own (K-41 with an outlet-P
+analyzer checked by the lab every 12 h; tests/pipeline/analyzer_plant.py): `kinetrace check` names it
+drifting within four days of the onset with its rate, corrects its readings until it is recalibrated,
+and a step is still reported as a step within 12 h."""
+
+import numpy as np
+import pandas as pd
+import pytest
+from typer.testing import CliRunner
+
+from kinetrace.cli import app
+from kinetrace.config import load_config, store_url
+from kinetrace.pipeline import run_check
+from kinetrace.store import open_store
+from tests.pipeline import analyzer_plant as ap
+from tests.pipeline import plants
+
+DAY = pd.Timedelta(days=1)
+
+
+def _setup(folder, **kw):
+    truth, readings, bias = ap.readings(1, **kw)
+    folder.mkdir(parents=True, exist_ok=True)
+    csv = plants.write_export(readings, folder / "export.csv")
+    return truth, readings, bias, ap.config(folder, csv, days=kw["days"])
+
+
+def test_check_names_a_drifting_analyzer_within_four_days(tmp_path):
+    # +0.5 %/d from day 8; the data end 96 h after the onset
+    truth, readings, bias, cfg = _setup(tmp_path, days=12.0, onset_day=8.0, drift=0.005)
+    res = CliRunner().invoke(app, ["check", "--config", str(cfg)])
+    assert res.exit_code == 1, res.stdout            # needs attention
+    onset = plants.START + 8 * DAY
+    store = open_store(store_url(load_config(cfg), cfg))
+    alarms = store.alarms()
+    store.close()
+    drift = alarms[(alarms["kind"] == "sensor_drift") & (alarms["variable"] == ap.ANALYZER)]
+    assert len(drift) == 1
+    row = drift.iloc[0]
+    assert row["detected"] <= onset + 4 * DAY
+    assert row["rate"] == pytest.approx(0.5, rel=0.3)            # % a day
+    assert row["state"] == "open" and row["last_check"] >= onset + 3 * DAY
+    # the words of the check name the analyzer, its size, its growth, its onset and the last lab check
+    assert f"analyzer {ap.ANALYZER} reads about +" in res.stdout
+    assert "% a day since" in res.stdout and "last lab check" in res.stdout
+    # no other sensor is blamed for it
+    others = alarms[alarms["kind"].isin(["sensor_bias", "sensor_drift"]) & (alarms["variable"] != ap.ANALYZER)]
+    assert others.empty, others[["kind", "variable", "evidence"]].to_string()
+
+
+def test_drifting_analyzer_corrected_until_recalibrated(tmp_path):
+    truth, readings, bias, cfg = _setup(tmp_path, days=20.0, onset_day=6.0, drift=0.005, recal_day=13.0)
+    (unit,), _ = run_check(cfg, store=None)
+    s = unit.series
+    day = (s.index - plants.START) / DAY
+    flag = s[f"analyzer_corrected:{ap.ANALYZER}"].to_numpy() > 0.5
+    assert flag[(day > 9.5) & (day < 12.5)].all()
+    assert not flag[day > 14.5].any()
+    (f,) = [f for f in unit.faults if f.source == "lab"]
+    assert f.kind == "drift" and f.end < plants.START + 13.5 * DAY
+    # while corrected, the outlet P used by the balances is the truth within about 1 %, where the raw
+    # analyzer read up to 3.5 % high
+    c_p = unit.roles["outlet_conc:P"].to_numpy()
+    true_p = truth.frame["c_p"].reindex(s.index).to_numpy()
+    inside = (day > 9.5) & (day < 12.5)
+    assert np.median(np.abs(c_p[inside] / true_p[inside] - 1)) < 0.01
+    assert np.median(readings[ap.ANALYZER].to_numpy()[:len(day)][inside] * 1000 / true_p[inside] - 1) > 0.02
+
+
+def test_step_still_reported_as_a_step_within_12_h(tmp_path):
+    truth, readings, bias, cfg = _setup(tmp_path, days=10.5, onset_day=10.0, step=0.03)
+    (unit,), _ = run_check(cfg, store=None)
+    onset = plants.START + 10 * DAY
+    lab = [f for f in unit.faults if f.source == "lab"]
+    assert len(lab) == 1 and lab[0].kind == "step" and lab[0].tags == (ap.ANALYZER,)
+    assert lab[0].alarm <= onset + pd.Timedelta("12h")
+    assert lab[0].relative == pytest.approx(0.03, abs=0.006)
+    assert all(f.kind == "step" for f in unit.faults)
