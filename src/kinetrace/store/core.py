@@ -164,9 +164,13 @@ def _upgrade_from_1(conn) -> None:
 def _upgrade_from_2(conn) -> None:
     """Version 2 -> 3: ``alarms`` gains ``rate`` (growth of a drift per day) and ``last_check``
     (the last lab result an analyzer was compared with); older alarms keep NULL there."""
+    from sqlalchemy import inspect
+
+    have = {c["name"] for c in inspect(conn).get_columns("alarms")}
     stamp = "TIMESTAMP WITH TIME ZONE" if conn.dialect.name == "postgresql" else "BIGINT"
-    conn.execute(text("ALTER TABLE alarms ADD COLUMN rate DOUBLE PRECISION"))
-    conn.execute(text(f"ALTER TABLE alarms ADD COLUMN last_check {stamp}"))
+    for name, kind in (("rate", "DOUBLE PRECISION"), ("last_check", stamp)):
+        if name not in have:
+            conn.execute(text(f"ALTER TABLE alarms ADD COLUMN {name} {kind}"))
     conn.execute(update(store_meta).where(store_meta.c.key == "schema_version").values(value=str(SCHEMA_VERSION)))
 
 
