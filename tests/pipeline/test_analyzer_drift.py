@@ -76,3 +76,21 @@ def test_step_still_reported_as_a_step_within_12_h(tmp_path):
     assert lab[0].alarm <= onset + pd.Timedelta("12h")
     assert lab[0].relative == pytest.approx(0.03, abs=0.006)
     assert all(f.kind == "step" for f in unit.faults)
+
+
+def test_daily_incremental_runs_find_the_drift_too(tmp_path):
+    """Run day by day (each incremental run re-reads 3 days of readings): the lab comparisons of the
+    earlier runs come back from the store, and the drift is named within four days all the same."""
+    truth, readings, bias, cfg = _setup(tmp_path, days=12.0, onset_day=8.0, drift=0.005)
+    run_check(cfg, until=str(plants.START + 8 * DAY))
+    for d in (9, 10, 11, 12):
+        run_check(cfg, until=str(plants.START + d * DAY), incremental=True)
+    store = open_store(store_url(load_config(cfg), cfg))
+    alarms = store.alarms()
+    series = store.series("K-41")
+    store.close()
+    assert np.isfinite(series[f"analyzer_lab_diff:{ap.ANALYZER}"]).sum() >= 20
+    drift = alarms[(alarms["kind"] == "sensor_drift") & (alarms["variable"] == ap.ANALYZER)]
+    assert len(drift) >= 1
+    assert drift["detected"].min() <= plants.START + 12 * DAY
+    assert drift.iloc[-1]["rate"] == pytest.approx(0.5, rel=0.3)

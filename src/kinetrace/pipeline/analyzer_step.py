@@ -12,7 +12,12 @@ Columns added to the unit's series, per analyzer tag ``<tag>``:
 ``analyzer_bias_rate:<tag>``        1/d    smoothed bias rate
 ``analyzer_bias_rate_sd:<tag>``     1/d    its standard error
 ``analyzer_corrected:<tag>``        -      1 where the reading used was corrected
+``analyzer_lab_diff:<tag>``         -      at a lab sample's interval: analyzer / lab - 1
+``analyzer_lab_diff_sd:<tag>``      -      its standard uncertainty
 ==================================  =====  ================================================
+
+The last two are what an incremental run, which re-reads only a few days of readings, takes
+back from the store (its ``history``) so that the track still spans months of lab samples.
 """
 
 from __future__ import annotations
@@ -66,7 +71,8 @@ def _relative_sigma(tag, values: np.ndarray) -> float:
     return float(np.median(_tag_sigma_array(tag, values[ok]) / np.abs(values[ok])))
 
 
-def track_analyzers(values: pd.DataFrame, valid: pd.DataFrame, model: UnitModel) -> AnalyzerOutcome:
+def track_analyzers(values: pd.DataFrame, valid: pd.DataFrame, model: UnitModel,
+                    history: pd.DataFrame | None = None) -> AnalyzerOutcome:
     """Track the bias of every analyzer with a lab counterpart and correct its readings.
 
     Parameters
@@ -74,6 +80,9 @@ def track_analyzers(values: pd.DataFrame, valid: pd.DataFrame, model: UnitModel)
     values, valid : DataFrame
         Per-tag values on the grid [SI] and their usable cells (:class:`kinetrace.ingest.UnitData`).
     model : UnitModel
+    history : DataFrame, optional
+        Earlier stored results of the unit: their ``analyzer_lab_diff`` columns give the lab
+        comparisons before the readings read now. [-]
 
     Returns
     -------
@@ -100,6 +109,12 @@ def track_analyzers(values: pd.DataFrame, valid: pd.DataFrame, model: UnitModel)
             continue
         comp = lab_comparisons(a, times, results, analyzer_sigma=_relative_sigma(tag, a.to_numpy(dtype=float)),
                                lab_sigma=_relative_sigma(lab, results), half_window=HALF_WINDOW)
+        rows = values.index.get_indexer(comp.index.floor(pd.Timedelta(seconds=step)))
+        for name, col in (("z", "analyzer_lab_diff"), ("z_sd", "analyzer_lab_diff_sd")):
+            arr = np.full(len(values.index), np.nan)
+            arr[rows[rows >= 0]] = comp[name].to_numpy()[rows >= 0]
+            cols[f"{col}:{tag.tag}"] = arr
+        comp = _with_history(comp, history, tag.tag, step)
         track = track_bias(comp, result_delay=lab.result_delay, analysis_delay=HALF_WINDOW)
         tracks[tag.tag] = track
         grid = track.on_grid(values.index)
@@ -113,6 +128,19 @@ def track_analyzers(values: pd.DataFrame, valid: pd.DataFrame, model: UnitModel)
         cols[f"analyzer_corrected:{tag.tag}"] = corrected.astype(float)
         faults += _faults(track, tag, role_column(tag.role, tag.species), raw, values.index)
     return AnalyzerOutcome(out_values, pd.DataFrame(cols, index=values.index), tracks, faults)
+
+
+def _with_history(comp: pd.DataFrame, history, tag: str, step: float) -> pd.DataFrame:
+    """Stored lab comparisons of earlier runs put before the ones computed now."""
+    zc, sc = f"analyzer_lab_diff:{tag}", f"analyzer_lab_diff_sd:{tag}"
+    if history is None or zc not in history or sc not in history or comp.empty:
+        return comp
+    old = history.loc[np.isfinite(history[zc].to_numpy(dtype=float)), [zc, sc]]
+    old.index = old.index + pd.Timedelta(seconds=step / 2)
+    old = old.loc[old.index < comp.index[0]].rename(columns={zc: "z", sc: "z_sd"})
+    if old.empty:
+        return comp
+    return pd.concat([old, comp]).sort_index()
 
 
 def _faults(track: BiasTrack, tag, role: str, raw: np.ndarray, index: pd.DatetimeIndex) -> list:

@@ -73,7 +73,7 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     from ..ingest import read_unit
 
     data = read_unit(cfg, model, config_path=config_path, since=since, until=until)
-    analyzers = track_analyzers(data.values, data.valid, model)    # analyzers against the lab, corrected
+    analyzers = track_analyzers(data.values, data.valid, model, history)   # analyzers against the lab
     roles = role_frame(analyzers.values, data.valid, data.volume, model)
     verdict = unit_verdict(roles, model)
     if verdict is not None:
