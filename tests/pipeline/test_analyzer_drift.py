@@ -94,3 +94,31 @@ def test_daily_incremental_runs_find_the_drift_too(tmp_path):
     assert len(drift) >= 1
     assert drift["detected"].min() <= plants.START + 12 * DAY
     assert drift.iloc[-1]["rate"] == pytest.approx(0.5, rel=0.3)
+
+
+@pytest.mark.parametrize("fault", ["drift", "step"])
+def test_balances_alone_tell_a_drift_from_a_step(tmp_path, fault):
+    """No lab tag: the balance residuals alone (the persistent-bias CUSUM, then the GLR of a step and
+    a ramp on the analyzer's hourly difference from what the other measurements give) report a
+    +1 %/d drift as a drift with its rate, and a +3 % step as a step."""
+    from tests.pipeline.test_self_calibration import TRUE
+
+    kw = dict(drift=0.01) if fault == "drift" else dict(step=0.03)
+    truth, readings, bias = ap.readings(1, days=20.0, onset_day=8.0, **kw)
+    readings = readings.drop(columns=[ap.LAB])
+    noise = np.random.default_rng(5).standard_normal(len(readings))
+    readings[ap.ANALYZER] = truth.frame["c_p"].to_numpy() / 1000 * (1 + bias) * (1 + 0.004 * noise)
+    csv = plants.write_export(readings, tmp_path / "export.csv")
+    target, _ = plants.target_for_crossing("saturating", truth, 30.0, 0.1)
+    cfg = plants.write_config("saturating", tmp_path, csv, start=TRUE["saturating"],
+                              target=f"{target / 1000:.6f} t/d", change_day=20.0)
+    (unit,), _ = run_check(cfg, store=None)
+    (f,) = [f for f in unit.faults if f.role == "outlet_conc:P"]
+    assert f.source == "balances" and f.kind == fault
+    onset = plants.START + 8 * DAY
+    assert abs(f.onset - onset) <= pd.Timedelta("12h")
+    if fault == "drift":
+        assert f.rate == pytest.approx(0.01, rel=0.3)
+        assert f.alarm <= onset + 4 * DAY
+    else:
+        assert f.alarm <= onset + pd.Timedelta("12h")
