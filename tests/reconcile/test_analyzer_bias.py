@@ -82,3 +82,8 @@ def test_filter_uses_only_results_reported_so_far():
     assert s["smoothed_bias"].iloc[-1] == pytest.approx(s["filtered_bias"].iloc[-1], abs=1e-12)
     # known once reported (4 h) and once the 6 h of analyzer readings after sampling are in
     assert (s["reported"] - s.index == pd.Timedelta(hours=6)).all()
+    # a run at some time sees only the results reported by then
+    as_of = s["reported"].iloc[9] + pd.Timedelta("1h")
+    early = track_bias(s[["lab", "analyzer", "z", "z_sd", "n_readings"]], result_delay=DELAY,
+                       analysis_delay=6 * 3600.0, as_of=as_of)
+    assert len(early.samples) == 10 and (early.samples["reported"] <= as_of).all()

@@ -115,7 +115,8 @@ def track_analyzers(values: pd.DataFrame, valid: pd.DataFrame, model: UnitModel,
             arr[rows[rows >= 0]] = comp[name].to_numpy()[rows >= 0]
             cols[f"{col}:{tag.tag}"] = arr
         comp = _with_history(comp, history, tag.tag, step)
-        track = track_bias(comp, result_delay=lab.result_delay, analysis_delay=HALF_WINDOW)
+        track = track_bias(comp, result_delay=lab.result_delay, analysis_delay=HALF_WINDOW,
+                           as_of=values.index[-1] + pd.Timedelta(seconds=step))
         tracks[tag.tag] = track
         grid = track.on_grid(values.index)
         corrected = grid["corrected"].to_numpy() > 0.5

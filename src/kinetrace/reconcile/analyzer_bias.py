@@ -352,7 +352,7 @@ def _classify(t, z, sd, first, last, prev_bias, lo):
 
 
 def track_bias(comparisons: pd.DataFrame, *, result_delay: float = 0.0, analysis_delay: float = 0.0,
-               threshold: float = GLR_THRESHOLD, window: int = GLR_WINDOW) -> BiasTrack:
+               threshold: float = GLR_THRESHOLD, window: int = GLR_WINDOW, as_of=None) -> BiasTrack:
     """Bias of an analyzer against the lab over time: change points, segments, filter and smoother.
 
     Parameters
@@ -366,6 +366,9 @@ def track_bias(comparisons: pd.DataFrame, *, result_delay: float = 0.0, analysis
         time that enter the local fit). [s]
     threshold, window
         GLR decision threshold [-] and window [samples] (:mod:`.ramp_step`).
+    as_of : Timestamp, optional
+        Time of the run: a sample not yet reported then (or whose analyzer readings after it are
+        not all in) is left out. [UTC]
 
     Returns
     -------
@@ -379,6 +382,8 @@ def track_bias(comparisons: pd.DataFrame, *, result_delay: float = 0.0, analysis
     comp = comparisons.loc[np.isfinite(comparisons["z"].to_numpy(dtype=float))]
     s = comp.copy()
     s["reported"] = s.index + pd.Timedelta(seconds=max(result_delay, analysis_delay))
+    if as_of is not None:
+        s = s.loc[s["reported"] <= pd.Timestamp(as_of)]
     if len(s) == 0:
         for c in ("filtered_bias", "filtered_bias_sd", "filtered_rate", "filtered_rate_sd",
                   "smoothed_bias", "smoothed_bias_sd", "smoothed_rate", "smoothed_rate_sd"):
