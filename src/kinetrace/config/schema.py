@@ -218,6 +218,8 @@ class Tag(_Strict):
     or absolute in any unit of the tag's kind (``"0.03 mol/L"``).
     ``valid_range`` is the physical range in the tag's own unit.
     ``max_age`` is how long an analyzer or lab value may be carried forward.
+    ``result_delay`` (lab tags) is the time from sampling to the result being reported; the
+    tag's time stamps are the sampling times.
     """
 
     tag: str
@@ -228,6 +230,7 @@ class Tag(_Strict):
     sampling: Sampling = "continuous"
     max_age: Duration | None = None
     dead_time: DeadTime = 0.0
+    result_delay: DeadTime = 0.0
     valid_range: tuple[float, float] | None = None
     description: str = ""
     # --- ingest options (see kinetrace.ingest; all optional) ---

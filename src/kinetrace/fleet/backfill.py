@@ -81,6 +81,7 @@ def finish_from_chunks(config_path: str, unit_id: str, parts: list[dict]):
     from ..config import load_config, unit_model
     from ..pipeline.backcalc import back_calculate
     from ..pipeline.daily import finish_unit
+    from ..pipeline.analyzer_step import track_analyzers
     from ..pipeline.roles import role_frame
 
     cfg = load_config(config_path)
@@ -90,10 +91,11 @@ def finish_from_chunks(config_path: str, unit_id: str, parts: list[dict]):
         raise RuntimeError(f"unit {unit_id}: chunks overlap at {values.index[values.index.duplicated()][0]}")
     valid = pd.concat([p["valid"] for p in parts])
     volume = pd.concat([p["volume"] for p in parts])
-    roles = role_frame(values, valid, volume, model)
+    analyzers = track_analyzers(values, valid, model)     # analyzers against the lab, as check_unit does
+    roles = role_frame(analyzers.values, valid, volume, model)
     measured = back_calculate(roles, model)
     quality = sum_quality([p["quality"] for p in parts])
-    return finish_unit(cfg, model, roles, measured, quality)
+    return finish_unit(cfg, model, roles, measured, quality, analyzers=analyzers)
 
 
 def sum_quality(frames: list[pd.DataFrame]) -> pd.DataFrame:

@@ -49,6 +49,9 @@ COLUMNS: dict[str, str] = {
     "activity": "-", "production": "mol/s", "production_mass": "kg/s", "target_mass": "kg/s",
     "production_ratio": "-", "steady": "bool", "rate_basis": "text", "running": "-",
     "flowsheet_flow": "m3/s", "flowsheet_conc": "mol/m3", "flowsheet_extent": "mol/s",   # network_step
+    "analyzer_bias": "-", "analyzer_bias_sd": "-", "analyzer_bias_rate": "1/d",          # analyzer_step
+    "analyzer_bias_rate_sd": "1/d", "analyzer_corrected": "-", "analyzer_lab_diff": "-",
+    "analyzer_lab_diff_sd": "-",
 }
 
 

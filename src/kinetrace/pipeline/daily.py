@@ -17,6 +17,7 @@ import pandas as pd
 from ..config import PlantConfig, UnitModel, load_config, resolve_path, unit_model
 from ..errors import DataQualityError, KinetraceError
 from ..redact import redact_url
+from .analyzer_step import track_analyzers
 from .backcalc import back_calculate
 from .feed import analysed_flags, monitoring_feed
 from .calibration_step import calibrate_unit, parameter_uncertainty, rederive
@@ -76,13 +77,15 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
     from ..ingest import read_unit
 
     data = read_unit(cfg, model, config_path=config_path, since=since, until=until)
-    roles = role_frame(data.values, data.valid, data.volume, model)
+    analyzers = track_analyzers(data.values, data.valid, model, history)   # analyzers against the lab
+    roles = role_frame(analyzers.values, data.valid, data.volume, model)
     verdict = unit_verdict(roles, model)
     if verdict is not None:
         raise UnitNotCheckable(verdict, data, roles)
     measured = back_calculate(roles, model, fresh_k_ref=fresh_k_ref)
     result = finish_unit(cfg, model, roles, measured, data.quality, history=history,
-                         fresh_k_ref=fresh_k_ref, keep_from=keep_from, data=data, known_faults=known_faults)
+                         fresh_k_ref=fresh_k_ref, keep_from=keep_from, data=data, known_faults=known_faults,
+                         analyzers=analyzers)
     if result.calibration is not None:
         result.data = data
     return result
@@ -90,7 +93,8 @@ def check_unit(cfg: PlantConfig, model: UnitModel, *, config_path, since=None, u
 
 def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measured: pd.DataFrame,
                 quality: pd.DataFrame, *, history: pd.DataFrame | None = None,
-                fresh_k_ref: dict | None = None, keep_from=None, data=None, known_faults=()) -> UnitResult:
+                fresh_k_ref: dict | None = None, keep_from=None, data=None, known_faults=(),
+                analyzers=None) -> UnitResult:
     """The check of one unit after ingest: reconciliation, calibration, re-derivation, monitoring.
 
     :func:`check_unit` calls it on the rows it read; a backfill calls it once per unit on the
@@ -112,8 +116,13 @@ def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measure
     data : UnitData, optional
         The readings as read (for a ``[units.flowsheet]``: its stream meters are not in ``roles``);
         a backfill passes none, and a flowsheet's columns are then left out.
+    analyzers : AnalyzerOutcome, optional
+        The analyzers against the lab (:mod:`kinetrace.pipeline.analyzer_step`): its columns join
+        the series and its faults come before the balances' ones.
     """
     rec = reconcile_unit(roles, model, steady=measured["steady"], known_faults=known_faults)
+    if analyzers is not None:
+        rec.faults = list(analyzers.faults) + rec.faults
     series = back_calculate(rec.roles, model, steady=measured["steady"], fresh_k_ref=fresh_k_ref)
     series = series.join(rec.frame)
     old = None
@@ -143,6 +152,8 @@ def finish_unit(cfg: PlantConfig, model: UnitModel, roles: pd.DataFrame, measure
                                   + [c for c in measured if c.startswith("k_ref:")]].add_suffix("_measured"))
     series["fitted_parameters"] = 1.0 if outcome.model is not None else 0.0
     series = series.join(analysed_flags(roles, model))
+    if analyzers is not None and len(analyzers.columns.columns):
+        series = series.join(analyzers.columns)
     series = series.join(k_ref_band(series, used, rec.roles, extra_sd=parameter_uncertainty(series, used, outcome.calibration)))
     if data is not None:   # [units.flowsheet]: the network's reconciliation of the raw readings; none: no columns
         series = series.join(flowsheet_columns(data.values, data.valid, used))
@@ -369,8 +380,9 @@ def write_unit_findings(run, res: UnitResult, window) -> None:
              "method": basis.get(rid, "")} for rid, v in fresh.items()]))
     if res.faults:
         run.write_alarms(uid, pd.DataFrame([{
-            "kind": "balance_mismatch" if f.ambiguous else "sensor_bias", "variable": ", ".join(f.tags) or f.role, "onset": f.onset,
+            "kind": _fault_kind(f), "variable": ", ".join(f.tags) or f.role, "onset": f.onset,
             "detected": f.alarm, "magnitude": 100 * f.relative, "magnitude_unit": "%",
+            "rate": 100 * f.rate if f.kind == "drift" else None, "last_check": f.last_check,
             "evidence": f.evidence(), "state": "open" if f.end >= res.series.index[-1] - pd.Timedelta("2h") else "closed",
             "closed": None if f.end >= res.series.index[-1] - pd.Timedelta("2h") else f.end}
             for f in res.faults]))
@@ -399,6 +411,11 @@ def write_unit_findings(run, res: UnitResult, window) -> None:
         if len(wi):
             run.write_whatif(uid, wi)
     run.set_watermark(uid, res.series.index[-1])
+
+
+def _fault_kind(f) -> str:
+    """Alarm kind of a SensorFault: ``balance_mismatch``, ``sensor_drift`` or ``sensor_bias``."""
+    return "balance_mismatch" if f.ambiguous else "sensor_drift" if f.kind == "drift" else "sensor_bias"
 
 
 #: Readings before the watermark re-read as context on an incremental run (steady-state test,

@@ -40,6 +40,8 @@ from ..config import UnitModel
 from ..errors import KinetraceError
 from ..reconcile import detect_persistent_bias, global_test, reconcile_cstr
 from ..reconcile import UnobservableError
+from ..reconcile.analyzer_bias import DRIFT_MARGIN
+from ..reconcile.ramp_step import glr_step_ramp
 from ..reconcile.serial_error import location_standard_error
 from .backcalc import _utc
 from .derivatives import smoothed_derivative
@@ -65,9 +67,16 @@ class SensorFault:
     variable: str = ""            # name in the reconciliation vector
     onset_index: int = -1
     end_index: int = -1
+    kind: str = "step"            # "step" (a constant bias from the onset) or "drift" (growing)
+    rate: float = float("nan")    # drift rate, relative [1/d]
+    rate_sd: float = float("nan")
+    source: str = "balances"      # "balances" or "lab" (the analyzer against the lab results)
+    last_check: pd.Timestamp | None = None   # the last lab result compared with the analyzer [UTC]
 
     def evidence(self) -> str:
         """Plain-language description of the fault."""
+        if self.source == "lab":
+            return analyzer_words(self)
         direction = "high" if self.magnitude > 0 else "low"
         rel_sd = abs(self.magnitude_sd / self.magnitude * self.relative) if self.magnitude else float("nan")
         # the 95 % interval, and the size given to the precision that interval allows
@@ -76,6 +85,9 @@ class SensorFault:
         text = (f"{self.role} ({', '.join(self.tags)}) reads {direction} by {abs(self.relative) * 100:.{dec}f} % "
                 f"(95 % interval +/- {half:.{dec}f} %) since about {self.onset:%Y-%m-%d %H:%M} UTC; "
                 f"alarm raised {self.alarm:%Y-%m-%d %H:%M} UTC.")
+        if self.kind == "drift" and np.isfinite(self.rate):
+            text += (f" The balances show it growing by about {100 * self.rate:+.2f} % a day "
+                     f"(95 % interval +/- {196 * self.rate_sd:.2f} %), a drift rather than a step.")
         if self.ambiguous:
             alts = "; ".join(f"{r} {'high' if v > 0 else 'low'} by {abs(v) * 100:.1f} %" for r, v in self.alternatives.items())
             return text + (f" A lab result or a feed specification explains the balances as well ({alts}); "
@@ -86,6 +98,32 @@ class SensorFault:
                      "reading stepped at the onset. Check against an independent reference (a calibration, "
                      "a tank dip, a lab sample) before acting.")
         return text
+
+
+def analyzer_words(f: SensorFault) -> str:
+    """Words of an analyzer fault found against the lab (``source == "lab"``).
+
+    >>> f = SensorFault("outlet_conc:P", ("AI-7",), pd.Timestamp("2027-03-09T00:00Z"),
+    ...                 pd.Timestamp("2027-03-11T16:00Z"), pd.Timestamp("2027-03-12T12:00Z"), 19.0, 0.019,
+    ...                 1.5, kind="drift", rate=0.0049, rate_sd=0.0006, source="lab",
+    ...                 last_check=pd.Timestamp("2027-03-12T12:20Z"))
+    >>> print(f.evidence())  # doctest: +NORMALIZE_WHITESPACE
+    analyzer AI-7 (outlet_conc:P) reads about +1.9 %, growing about +0.49 % a day (95 % interval
+    +/- 0.12) since 2027-03-09; last lab check 2027-03-12 12:20 UTC. Its readings are corrected by
+    the tracked bias until it is recalibrated. Take a lab check or recalibrate the analyzer.
+    """
+    tags = ", ".join(f.tags)
+    text = f"analyzer {tags} ({f.role}) reads about {100 * f.relative:+.1f} %"
+    if f.kind == "drift":
+        text += (f", growing about {100 * f.rate:+.2f} % a day (95 % interval +/- {196 * f.rate_sd:.2f})"
+                 f" since {f.onset:%Y-%m-%d}")
+    else:
+        text += (f" (95 % interval +/- {196 * abs(f.magnitude_sd / f.magnitude * f.relative):.1f} %), "
+                 f"a step since about {f.onset:%Y-%m-%d %H:%M} UTC" if f.magnitude else "")
+    if f.last_check is not None:
+        text += f"; last lab check {f.last_check:%Y-%m-%d %H:%M} UTC"
+    return text + (". Its readings are corrected by the tracked bias until it is recalibrated. "
+                   "Take a lab check or recalibrate the analyzer.")
 
 
 @dataclass
@@ -374,17 +412,68 @@ def _faults(res, solve, idx, names, role_of, model, min_duration, k, h, known=()
                                            idx[0], (idx[1] - idx[0]).total_seconds() if len(idx) > 1 else 3600.0)
             mag, sd = rel * scale, rel_sd * scale
         role = role_of[chosen]
+        kind, rate, rate_sd, drift_onset = _step_or_drift(res, solve, idx, names, chosen, ev.onset_index, ev.end_index)
+        if drift_onset is not None and not prior:   # a drift began before the CUSUM's step onset
+            onset = _utc(idx[drift_onset])
         others = [e for e in candidates if e != chosen and e in estimates]
         ambiguous = any(role_of[e] not in online for e in others)
         faults.append(SensorFault(
             role=role, tags=tuple(t.tag for t in model.tags if _role_of_tag(t) == role),
-            onset=onset, alarm=alarm, end=_utc(ev.end_time),
+            onset=min(onset, alarm), alarm=alarm, end=_utc(ev.end_time),
             magnitude=mag, relative=mag / scale if scale else float("nan"), magnitude_sd=sd,
             equivalent=tuple(role_of[e] for e in others),
             alternatives={_describe(role_of[e], model): estimates[e][0] / estimates[e][2] for e in others},
             variable=chosen, onset_index=int(ev.onset_index), end_index=int(ev.end_index),
-            ambiguous=ambiguous))
+            ambiguous=ambiguous, kind=kind, rate=rate, rate_sd=rate_sd))
     return faults
+
+
+#: Hours before a balance fault's onset taken as its in-control reference. [grid steps]
+_BASELINE_STEPS = 48
+
+
+def _step_or_drift(res, solve, idx, names, chosen, a, b):
+    """A balance fault told a step or a drift: GLR of a step and of a ramp (Basseville & Nikiforov
+    1993; :func:`kinetrace.reconcile.ramp_step.glr_step_ramp`) on the sensor's relative difference
+    from the value the other measurements and the balances give for it, from ``_BASELINE_STEPS``
+    before the onset to the event's end (a near-tie goes to the drift, as for the lab comparison).
+
+    Returns (kind, rate [1/d], rate_sd [1/d], onset row of a drift or None).
+    """
+    lo = max(0, a - _BASELINE_STEPS)
+    rows = slice(lo, b + 1)
+    j = names.index(chosen)
+    other = solve(rows, drop=chosen)
+    y = res.x[rows, j] - res.adjustment[rows, j]
+    with np.errstate(divide="ignore", invalid="ignore"):
+        rel = (y - other.x[:, j]) / other.x[:, j]
+    ok = np.isfinite(rel) & np.asarray(other.converged, dtype=bool)
+    if ok.sum() < 8:
+        return "step", float("nan"), float("nan"), None
+    pre = rel[: a - lo][ok[: a - lo]]
+    base = float(np.median(pre)) if pre.size >= 6 else 0.0
+    d = np.diff(rel[ok])
+    spread = 1.4826 * float(np.median(np.abs(d - np.median(d)))) / np.sqrt(2.0)
+    if not spread > 0:
+        return "step", float("nan"), float("nan"), None
+    u = np.where(ok, (rel - base) / spread, np.nan)
+    t = (idx[rows].as_unit("ns").asi8 / 1e9) / 86400.0
+    g = glr_step_ramp(u, t, window=u.size)
+    n = u.size - 1
+    if not (g.ramp[n] + DRIFT_MARGIN > g.step[n]):
+        return "step", float("nan"), float("nan"), None
+    m = int(g.ramp_onset[n])
+    tau = t[m - 1] if m > 0 else t[0]
+    x = (t - tau)[m:][ok[m:]]
+    resid = (u[m:][ok[m:]] - g.ramp_rate[n] * x)
+    # hourly differences are serially correlated: the slope's standard error is widened by the
+    # AR(1) effective sample size (common practice, no source)
+    rho = float(np.clip(np.corrcoef(resid[:-1], resid[1:])[0, 1], 0.0, 0.95)) if resid.size > 3 else 0.0
+    rate_sd = spread / np.sqrt(float((x * x).sum())) * np.sqrt((1 + rho) / (1 - rho))
+    rate = float(g.ramp_rate[n]) * spread
+    if abs(rate) < 3.0 * rate_sd:
+        return "step", float("nan"), float("nan"), None
+    return "drift", rate, float(rate_sd), lo + max(m - 1, 0)
 
 
 def _describe(role: str, model: UnitModel) -> str:

@@ -126,12 +126,21 @@ def alarm_words(row) -> str:
     >>> alarm_words({"kind": "ewma_down", "variable": "activity", "magnitude": -0.03,
     ...              "magnitude_unit": "-", "onset": pd.Timestamp("2026-11-20T00:00Z")})
     'catalyst activity falling faster than its trend (EWMA) since 20 Nov'
+    >>> alarm_words({"kind": "sensor_drift", "variable": "K41-AI-P", "magnitude": 1.93, "rate": 0.49,
+    ...              "magnitude_unit": "%", "onset": pd.Timestamp("2027-03-09T00:00Z"),
+    ...              "last_check": pd.Timestamp("2027-03-12T12:30Z")})
+    'analyzer K41-AI-P reads about +1.9 %, growing about +0.49 % a day since 9 Mar; last lab check 12 Mar'
     """
     kind, var = str(row.get("kind", "")), str(row.get("variable", ""))
     since = "" if pd.isna(row.get("onset")) else f" since {_date(row['onset'])}"
     mag = _f(row.get("magnitude"))
+    checked = "" if pd.isna(row.get("last_check")) else f"; last lab check {_date(row['last_check'])}"
+    if kind == "sensor_drift":
+        rate = _f(row.get("rate"))
+        growing = f", growing about {rate:+.2f} % a day" if math.isfinite(rate) else ", drifting"
+        return f"analyzer {var} reads about {mag:+.1f} %{growing}{since}{checked}"
     if kind == "sensor_bias":
-        return f"{var} reads about {mag:+.1f} %{since}"
+        return f"{var} reads about {mag:+.1f} %{since}{checked}"
     if kind == "balance_mismatch":
         return f"the balances disagree with {var} by about {mag:+.1f} % (a lab result or the feed specification may explain it){since}"
     method, _, direction = kind.partition("_")
@@ -224,6 +233,8 @@ def build_verdict(unit: str, day: dt.date, daily: pd.DataFrame, *, alarms_open: 
 def _next_step(state: str, causes: list[str], alarms_open) -> str:
     if alarms_open is not None and len(alarms_open):
         a = alarms_open.iloc[0]
+        if a["kind"] == "sensor_drift":
+            return f"take a lab check of {a['variable']} or recalibrate it (its readings are corrected meanwhile)"
         if a["kind"] in ("sensor_bias", "balance_mismatch"):
             return f"check {a['variable']} (calibration, or a portable or lab cross-check)"
     if state == "no data":

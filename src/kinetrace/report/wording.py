@@ -21,6 +21,7 @@ KIND_WORDS = {
     "cusum": "Gradual drift (CUSUM)",
     "ewma": "Gradual drift (EWMA)",
     "step": "Sudden step",
+    "sensor_drift": "Analyzer drifting against the lab",
 }
 
 LEVER_WORDS = {"temperature": "temperature", "feed_flow": "feed rate", "residence_time": "residence time"}

@@ -59,7 +59,8 @@ parameters          (unit_id, as_of, name); value, std_error, ci_low,   as_of in
                     ci_high, ci_level, unit_of_measure, method, run_id
 alarms              (unit_id, kind, variable, detected); onset,         detected in [start, end); earlier
                     magnitude, magnitude_unit, evidence, state          alarms are updated by their key
-                    (open / closed), closed, run_id
+                    (open / closed), closed, run_id, rate (of a drift,
+                    magnitude_unit per day), last_check (last lab result)
 data_quality        (unit_id, tag, period_start, measure);              period_start in [start, end)
                     period_end, count, run_id
 forecasts           (unit_id, as_of); activity_now, activity_needed,    as_of in (start, end]
@@ -81,7 +82,7 @@ The same table in markdown:
 | `series_values` | `key_id`, `ts` | `value`, `run_id` | `ts` in [start, end) |
 | `daily_production` | `unit_id`, `day` | `production_kg`, `target_kg`, `gap_kg`, `gap_feed_kg`, `gap_conversion_kg`, `gap_downtime_kg`, `gap_data_kg`, `hours_with_data`, `run_id` | day overlaps the window |
 | `parameters` | `unit_id`, `as_of`, `name` | `value`, `std_error`, `ci_low`, `ci_high`, `ci_level`, `unit_of_measure`, `method`, `run_id` | `as_of` in (start, end] |
-| `alarms` | `unit_id`, `kind`, `variable`, `detected` | `onset`, `magnitude`, `magnitude_unit`, `evidence`, `state`, `closed`, `run_id` | `detected` in [start, end) |
+| `alarms` | `unit_id`, `kind`, `variable`, `detected` | `onset`, `magnitude`, `magnitude_unit`, `evidence`, `state`, `closed`, `run_id`, `rate` [magnitude_unit/d], `last_check` | `detected` in [start, end) |
 | `data_quality` | `unit_id`, `tag`, `period_start`, `measure` | `period_end`, `count`, `run_id` | `period_start` in [start, end) |
 | `forecasts` | `unit_id`, `as_of` | `activity_now`, `activity_needed`, `miss_earliest`, `miss_expected`, `miss_latest`, `statement`, `run_id` | `as_of` in (start, end] |
 | `whatif` | `unit_id`, `as_of`, `lever` | `current_value`, `proposed_value`, `safe_low`, `safe_high`, `unit_of_measure`, `restores_target`, `note`, `run_id` | `as_of` in (start, end] |

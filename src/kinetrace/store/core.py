@@ -158,6 +158,19 @@ def _upgrade_from_1(conn) -> None:
     longer than 64 characters; PostgreSQL refused them, SQLite never bounded them)."""
     if conn.dialect.name == "postgresql":
         conn.execute(text("ALTER TABLE parameters ALTER COLUMN method TYPE TEXT"))
+    conn.execute(update(store_meta).where(store_meta.c.key == "schema_version").values(value="2"))
+
+
+def _upgrade_from_2(conn) -> None:
+    """Version 2 -> 3: ``alarms`` gains ``rate`` (growth of a drift per day) and ``last_check``
+    (the last lab result an analyzer was compared with); older alarms keep NULL there."""
+    from sqlalchemy import inspect
+
+    have = {c["name"] for c in inspect(conn).get_columns("alarms")}
+    stamp = "TIMESTAMP WITH TIME ZONE" if conn.dialect.name == "postgresql" else "BIGINT"
+    for name, kind in (("rate", "DOUBLE PRECISION"), ("last_check", stamp)):
+        if name not in have:
+            conn.execute(text(f"ALTER TABLE alarms ADD COLUMN {name} {kind}"))
     conn.execute(update(store_meta).where(store_meta.c.key == "schema_version").values(value=str(SCHEMA_VERSION)))
 
 
@@ -186,8 +199,12 @@ class Store:
             have = conn.execute(select(store_meta.c.value).where(store_meta.c.key == "schema_version")).scalar()
             if have is None:
                 conn.execute(insert(store_meta).values(key="schema_version", value=str(SCHEMA_VERSION)))
-            elif have == "1":
-                _upgrade_from_1(conn)
+            else:
+                if have == "1":
+                    _upgrade_from_1(conn)
+                    have = "2"
+                if have == "2":
+                    _upgrade_from_2(conn)
             _upgrade_run_states(conn)
 
     def check_version(self) -> None:

@@ -18,7 +18,7 @@ DAILY_COLUMNS = ("production_kg", "target_kg", "gap_kg", "gap_feed_kg", "gap_con
 GAP_PARTS = ("gap_feed_kg", "gap_conversion_kg", "gap_downtime_kg", "gap_data_kg")
 PARAMETER_COLUMNS = ("name", "value", "std_error", "ci_low", "ci_high", "ci_level", "unit_of_measure", "method")
 ALARM_COLUMNS = ("kind", "variable", "onset", "detected", "magnitude", "magnitude_unit", "evidence",
-                 "state", "closed")
+                 "state", "closed", "rate", "last_check")
 FORECAST_COLUMNS = ("activity_now", "activity_needed", "miss_earliest", "miss_expected", "miss_latest",
                     "statement")
 WHATIF_COLUMNS = ("lever", "current_value", "proposed_value", "safe_low", "safe_high", "unit_of_measure",
@@ -150,6 +150,8 @@ def alarm_record(row: dict, where: str, unit: str, run_id: int) -> dict:
         "magnitude": as_float(row.get("magnitude")),
         "magnitude_unit": str(row.get("magnitude_unit") or ""),
         "evidence": str(row.get("evidence") or ""),
+        "rate": as_float(row.get("rate")),
+        "last_check": time_or_none(row.get("last_check"), f"{where}: last_check"),
         "unit_id": unit, "run_id": run_id,
     }
     if rec["onset"] is not None and rec["onset"] > rec["detected"]:

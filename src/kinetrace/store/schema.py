@@ -39,7 +39,7 @@ from sqlalchemy.types import TypeDecorator
 from ..errors import KinetraceError
 
 #: Version of the table layout; stored in ``store_meta`` and checked on open.
-SCHEMA_VERSION = 2
+SCHEMA_VERSION = 3
 
 #: Run states written to ``runs.status``.
 #: ``abandoned``: a run whose process ended without finishing (killed, host lost), marked so by the
@@ -218,6 +218,8 @@ alarms = Table(
     Column("state", String(8), nullable=False),
     Column("closed", UtcTime),
     Column("run_id", Integer, ForeignKey("runs.run_id"), nullable=False),
+    Column("rate", Double),             # version 3: growth of a drift [magnitude_unit per day]
+    Column("last_check", UtcTime),      # version 3: last independent check (a lab result) [UTC]
     CheckConstraint("state IN ('open', 'closed')", name="alarms_state"),
 )
 Index("alarms_unit_detected", alarms.c.unit_id, alarms.c.detected)

@@ -341,7 +341,9 @@ class RunWriter:
         frame : DataFrame
             One row per alarm: ``kind`` (e.g. ``"drift"``, ``"step"``), ``variable``
             (sensor tag or result variable), ``onset`` (estimated start) and
-            ``detected`` [UTC, tz-aware], ``magnitude`` [``magnitude_unit``],
+            ``detected`` [UTC, tz-aware], ``magnitude`` [``magnitude_unit``], optionally ``rate``
+            (growth of a drift) [``magnitude_unit`` per day] and ``last_check`` (the last lab result
+            the sensor was compared with) [UTC],
             ``evidence`` (text), ``state`` (``"open"`` or ``"closed"``), ``closed``
             [UTC] when closed.
 
