@@ -1,7 +1,8 @@
 """Benchmark of the backfill (kinetrace.fleet): a simulated fleet on a LocalCluster of 1 and of 2 workers.
 
-The fleet is ``--units`` reactors with ``--years`` of 1-minute history each, from the project's
-simulator (the demo plant's two reactors, R-210 and R-220, simulated once and kept in ``--data``;
+The fleet is ``--units`` reactors (default 50) with ``--years`` of 1-minute history each (default 1),
+from the project's simulator (the demo plant's two reactors, R-210 and R-220, simulated once and
+kept in ``--data``, default ``benchmarks/results/fleet/``, and reused by later runs;
 reactor k of the fleet is a copy of one of them under its own id, reading the same historian).
 The same backfill runs on an embedded LocalCluster of one worker process and then of two, in
 this run, each with a fresh store and chunk cache; printed: wall time of each, the speed-up,
@@ -67,7 +68,7 @@ def fleet_config(folder: Path, db: Path, units: int) -> Path:
         uid = base[k % len(base)]["id"]
         out.append(b.replace(f'id = "{uid}"', f'id = "{uid}-{k // len(base) + 1:03d}"', 1))
     cfg_text = head + "\n".join(out)
-    cfg_text = cfg_text.replace('path = "../sample_historian/generated/calder_bank.sqlite"', f'path = "{db}"')
+    cfg_text = cfg_text.replace('path = "../sample_historian/generated/calder_bank.sqlite"', f'path = "{db.resolve()}"')
     cfg_text = cfg_text.replace('output_dir = "../out"', f'output_dir = "{folder / "out"}"')
     cfg_text = cfg_text.replace('url = "sqlite:///../out/results.sqlite"', f'url = "sqlite:///{folder / "unused.sqlite"}"')
     path = folder / f"fleet-{units}.toml"
@@ -94,8 +95,9 @@ def backfill(cfg: Path, since, until, workers: int, work: Path, chunk: str) -> t
     return wall, peaks, out
 
 
-def single_unit(cfg: Path, since, until) -> tuple[float, float]:
-    """(whole check, ingest alone) of the first unit over the period, in this process. [s]"""
+def single_unit(cfg: Path, since, until) -> tuple[float, float, float]:
+    """(whole check, ingest alone, CPU time of the whole check) of R-220 over the period, in this
+    process (the CPU time, all threads, tells a slow check from a busy machine). [s]"""
     from kinetrace.config import load_config, unit_model
     from kinetrace.ingest import read_unit
     from kinetrace.pipeline.daily import check_unit
@@ -105,9 +107,9 @@ def single_unit(cfg: Path, since, until) -> tuple[float, float]:
     t = time.perf_counter()
     read_unit(c, model, config_path=cfg, since=since, until=until)
     ingest = time.perf_counter() - t
-    t = time.perf_counter()
+    t, cpu = time.perf_counter(), time.process_time()
     check_unit(c, model, config_path=cfg, since=since, until=until)
-    return time.perf_counter() - t, ingest
+    return time.perf_counter() - t, ingest, time.process_time() - cpu
 
 
 def main() -> None:
@@ -119,8 +121,8 @@ def main() -> None:
     ap.add_argument("--units", type=int, default=50, help="reactors in the fleet")
     ap.add_argument("--years", type=float, default=1.0, help="years of 1-minute history per reactor")
     ap.add_argument("--chunk", default="30D", help="chunk length (pandas span)")
-    ap.add_argument("--data", type=Path, default=Path(tempfile.gettempdir()) / "kinetrace-bench-fleet",
-                    help="where the simulated historian is kept between runs")
+    ap.add_argument("--data", type=Path, default=ROOT / "benchmarks" / "results" / "fleet",
+                    help="where the simulated historian is kept between runs (generated once, reused)")
     args = ap.parse_args()
     logging.getLogger("kinetrace").setLevel(logging.WARNING)
     days = max(1, int(round(365 * args.years)))
@@ -131,9 +133,10 @@ def main() -> None:
     with tempfile.TemporaryDirectory() as tmp:
         work = Path(tmp)
         cfg = fleet_config(work, db, args.units)
-        check_s, ingest_s = single_unit(cfg, since, until)
-        print(f"single unit, {days} days of 1-minute data from SQLite: check {check_s:.2f} s, ingest alone "
-              f"{ingest_s:.2f} s, after ingest {check_s - ingest_s:.2f} s (ratio check/ingest {check_s / ingest_s:.2f})")
+        check_s, ingest_s, cpu_s = single_unit(cfg, since, until)
+        print(f"single unit, {days} days of 1-minute data from SQLite: check {check_s:.2f} s (CPU {cpu_s:.2f} s), "
+              f"ingest alone {ingest_s:.2f} s, after ingest {check_s - ingest_s:.2f} s (ratio check/ingest "
+              f"{check_s / ingest_s:.2f}); load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores")
         rows = {}
         for workers in (1, 2):
             wall, peaks, out = backfill(cfg, since, until, workers, work, args.chunk)

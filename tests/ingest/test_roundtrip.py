@@ -136,8 +136,9 @@ def test_sqlite_binary_path_reads_plain_ranges_and_hands_odd_ones_on(tmp_path, m
 
     taken = []
     original = sqlite_arrow.RangeReader.read
+    # (range start, taken in binary): ranges are read side by side, so in rowid order only once sorted
     monkeypatch.setattr(sqlite_arrow.RangeReader, "read",
-                        lambda self, *a: taken.append(original(self, *a) is not None) or original(self, *a))
+                        lambda self, *a: taken.append((a[1][0], original(self, *a) is not None)) or original(self, *a))
     df = readings(hours=6, seed=2)
     write_sqlite(df, tmp_path / "h.sqlite")
     con = sqlite3.connect(tmp_path / "h.sqlite")
@@ -150,6 +151,7 @@ def test_sqlite_binary_path_reads_plain_ranges_and_hands_odd_ones_on(tmp_path, m
         got = read_unit(cfg, "R-220", config_path=tmp_path / "p.toml")
     finally:
         sqlite_mode(old)
+    taken = [ok for _, ok in sorted(taken)]
     assert len(taken) >= 2 and all(taken[:-1]) and not taken[-1]   # the text is in the last range
     assert got.quality.loc["CB2:R220_TEMP.F", "bad_value"] == 1
     assert got.source_report["rows"] == len(df) + 1
@@ -278,3 +280,34 @@ def test_postgres_query_template(df, tmp_path, reference, pg_url, monkeypatch, u
     _same(got, reference)
     if not use_copy:   # streamed in partitions of chunk_rows
         assert got.source_report["chunks"] == -(-got.source_report["rows"] // 1000)
+
+
+def test_sqlite_ranges_read_side_by_side_equal_one_reader(tmp_path):
+    """Rowid ranges read by two connections at once (and the rowid bounds found by tag groups
+    side by side) give exactly the frame, fates and report of one connection reading them in
+    turn, with a text value in a middle range handed to the text path in its place."""
+    import sqlite3
+
+    from kinetrace.ingest import sql_source
+
+    df = readings(hours=24, seed=9)
+    write_sqlite(df.sample(frac=1.0, random_state=3), tmp_path / "h.sqlite")   # out of time order
+    con = sqlite3.connect(tmp_path / "h.sqlite")
+    con.execute("UPDATE readings SET value = 'x,y' WHERE rowid = 2500")       # a text in a middle range
+    con.commit()
+    con.close()
+    cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"], "chunk_rows": 1000}, grid="10 min")
+    got, old = {}, (sql_source.READ_THREADS, sqlite_mode("binary"))
+    try:
+        for n in (1, 2):
+            sql_source.READ_THREADS = n
+            got[n] = read_unit(cfg, "R-220", config_path=tmp_path / "p.toml")
+    finally:
+        sql_source.READ_THREADS = old[0]
+        sqlite_mode(old[1])
+    a, b = got[1], got[2]
+    pd.testing.assert_frame_equal(a.values, b.values, check_exact=True)
+    pd.testing.assert_frame_equal(a.valid, b.valid)
+    pd.testing.assert_frame_equal(a.quality, b.quality)
+    assert a.source_report == b.source_report and a.source_report["chunks"] > 4
+    assert a.quality["bad_value"].sum() == 1

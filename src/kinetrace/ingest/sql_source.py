@@ -44,7 +44,7 @@ from ..errors import ConfigError, IngestError, Problem
 from ..redact import scrub
 from .collect import Collector
 from .files import refuse_special_file
-from .sqlite_arrow import RangeReader
+from .sqlite_arrow import RangeReader, ReaderPool
 from .timestamps import NAT
 
 #: Stream PostgreSQL (psycopg 3) reads with COPY ... TO STDOUT; False uses the generic streamed SELECT.
@@ -54,6 +54,8 @@ USE_COPY = True
 USE_SQLITE_BULK = True
 #: In the SQLite bulk path, read the ranges in binary through the ADBC SQLite driver first.
 USE_SQLITE_ARROW = True
+#: Connections (threads) reading SQLite rowid ranges at once on the binary path. [-]
+READ_THREADS = 2
 
 
 def source_url(source: Source, base_dir: Path | None = None) -> tuple[sa.URL, str]:
@@ -346,7 +348,6 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
         other = f" OR {{p}}{ts} IS NULL OR NOT {{p}}{ts} LIKE '{_ISO_SHAPE}'" if window_kind(source) == "iso_text" else ""
         where.append(f"({' AND '.join(window)}{other})")
         args += wargs
-    cond = " AND ".join(where).format(p="")
     # in the chunk query a unary + keeps SQLite on the rowid range instead of a (tag, time) index
     cond_rowid = " AND ".join(where).format(p="+")
     # SQLite reads an unknown "double-quoted" name as a string literal: check the columns first
@@ -359,7 +360,45 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
             raise err(f"no such column: {table}.{name}")
     if not _has_rowid(raw, schema, table, have):
         return False      # a view, a WITHOUT ROWID or virtual table, or "rowid" names a column: streamed SELECT
-    lo, hi = raw.execute(f"SELECT min(rowid), max(rowid) FROM {tbl} WHERE {cond}", args).fetchone()
+    # SQLite builds each range's text in memory (and Python copies it): ranges of at most 50,000
+    # rows keep that near 5 MB instead of ~20 MB, for about 5 % more time (benchmarks/bench_ingest.py)
+    step = min(source.chunk_rows, 50_000)
+    database = conn.engine.url.database or ""
+    if database.startswith("file:"):  # a URI filename, as source_url writes for a read-only file
+        database = urllib.parse.unquote(database[len("file:"):].partition("?")[0])
+    binary = ReaderPool(database, step, READ_THREADS) if USE_SQLITE_ARROW and RangeReader.available(database) \
+        else None
+    try:
+        return _sqlite_ranges(raw, binary, source, tags, where, args, wargs,
+                              tbl=tbl, cond_rowid=cond_rowid, step=step, collector=collector, counts=counts)
+    finally:
+        if binary is not None:
+            binary.close()
+
+
+def _sqlite_ranges(raw, binary, source: Source, tags, where, args, wargs, *, tbl, cond_rowid,
+                   step, collector, counts) -> bool:
+    """The rowid ranges of :func:`_sqlite_bulk` read into ``collector`` (``binary``: a
+    :class:`ReaderPool`, or None for the text path only)."""
+    c = source.columns
+    q = lambda name: '"' + name.replace('"', '""') + '"'   # noqa: E731  (SQL identifier quoting)
+    ts, tg, val = q(c.timestamp), q(c.tag), q(c.value)
+    bounds = None
+    if binary is not None and binary.threads > 1 and len(tags) > 1:
+        # the rowid bounds of the tags in groups, side by side (each an index search of its tags)
+        queries = []
+        for g in (tags[i::binary.threads] for i in range(binary.threads)):
+            cond_g = " AND ".join([f"{tg} IN ({','.join('?' * len(g))})"] + where[1:]).format(p="")
+            queries.append((f"SELECT min(rowid), max(rowid) FROM {tbl} WHERE {cond_g}", list(g) + wargs))
+        try:
+            bounds = binary.bounds(queries)
+        except Exception:  # noqa: BLE001 - any driver problem: the one query below on this connection
+            bounds = None
+    if bounds is not None:
+        lo, hi = bounds
+    else:
+        cond = " AND ".join(where).format(p="")
+        lo, hi = raw.execute(f"SELECT min(rowid), max(rowid) FROM {tbl} WHERE {cond}", args).fetchone()
     counts.setdefault("rows", 0)
     if lo is None:
         return True
@@ -382,9 +421,6 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     opts = dict(strings_can_be_null=True, null_values=[""], quoted_strings_can_be_null=False)
     ro = pcsv.ReadOptions(column_names=names, use_threads=True, block_size=1 << 20)
     po = pcsv.ParseOptions(quote_char="'", double_quote=True)
-    # SQLite builds each range's text in memory (and Python copies it): ranges of at most 50,000
-    # rows keep that near 5 MB instead of ~20 MB, for about 5 % more time (benchmarks/bench_ingest.py)
-    step = min(source.chunk_rows, 50_000)
     plain = (f"SELECT {ts}, {tg}, {val}{', ' + q(c.quality) if c.quality else ''} FROM {tbl} "
              f"WHERE rowid >= ? AND rowid < ? AND {cond_rowid}")
     def text_range(range_args):
@@ -413,24 +449,19 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
         counts["rows"] += int(n)
         counts["chunks"] += 1
 
-    database = conn.engine.url.database or ""
-    if database.startswith("file:"):  # a URI filename, as source_url writes for a read-only file
-        database = urllib.parse.unquote(database[len("file:"):].partition("?")[0])
-    binary = RangeReader(database, step) if USE_SQLITE_ARROW and RangeReader.available(database) else None
-    try:
-        for a in range(lo, hi + 1, step):
-            by = None if binary is None else binary.read(plain, [a, a + step] + args, names,
-                                                         [n for n in names if n != c.value])
-            if by is not None:
-                if len(by[c.value]):
-                    collector.add(*_columns(collector, by, source, tags, None))
-                    counts["rows"] += len(by[c.value])
-                    counts["chunks"] += 1
-                continue
-            text_range([a, a + step] + args)
-    finally:
-        if binary is not None:
-            binary.close()
+    ranges = ([a, a + step] + args for a in range(lo, hi + 1, step))
+    if binary is None:
+        for range_args in ranges:
+            text_range(range_args)
+        return True
+    # ranges read side by side, taken in rowid order: the collector sees what one sequential read gives
+    for range_args, by in binary.read_all(plain, ranges, names, [n for n in names if n != c.value]):
+        if by is None:
+            text_range(range_args)
+        elif len(by[c.value]):
+            collector.add(*_columns(collector, by, source, tags, None))
+            counts["rows"] += len(by[c.value])
+            counts["chunks"] += 1
     return True
 
 

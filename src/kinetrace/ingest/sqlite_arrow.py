@@ -6,11 +6,18 @@ range is read as exactly one batch; a range whose columns do not come back with 
 the ingest expects (a text in the value column, a number in the time column, ...) is
 refused here and the caller reads it by its text path, which flags such readings one by
 one. Nothing is lost either way: a range is either taken whole from here or not at all.
+
+:class:`ReaderPool` reads several ranges at once, one connection per thread (the driver
+releases the GIL while SQLite steps through the rows), and hands them back in rowid order,
+so the collector sees exactly what one sequential read gives.
 """
 
 from __future__ import annotations
 
+from collections import deque
+from concurrent.futures import ThreadPoolExecutor
 from pathlib import Path
+from queue import SimpleQueue
 
 import adbc_driver_sqlite.dbapi as _adbc
 import pyarrow as pa
@@ -76,3 +83,84 @@ class RangeReader:
 
     def close(self) -> None:
         self._conn.close()
+
+
+class ReaderPool:
+    """Several :class:`RangeReader` of one file, each used by one thread at a time.
+
+    Parameters
+    ----------
+    path : str or Path
+        The database file.
+    rows_per_range : int
+        As for :class:`RangeReader`.
+    threads : int
+        Connections (and threads) reading at once; at most ``2 * threads`` ranges are read
+        ahead of the consumer, which bounds the memory held. [-]
+    """
+
+    def __init__(self, path, rows_per_range: int, threads: int):
+        self.threads = max(1, int(threads))
+        self._free: SimpleQueue = SimpleQueue()
+        self._all = []
+        try:
+            for _ in range(self.threads):
+                r = RangeReader(path, rows_per_range)
+                self._all.append(r)
+                self._free.put(r)
+        except Exception:
+            self.close()
+            raise
+        self._pool = ThreadPoolExecutor(self.threads, thread_name_prefix="kinetrace-sqlite") \
+            if self.threads > 1 else None
+
+    def _with_reader(self, fn, *args):
+        r = self._free.get()
+        try:
+            return fn(r, *args)
+        finally:
+            self._free.put(r)
+
+    def bounds(self, queries: list[tuple[str, list]]) -> tuple:
+        """``(min, max)`` over the one-row results ``(min, max)`` of the ``(sql, args)`` queries
+        (run side by side), ignoring NULLs; ``(None, None)`` if all are NULL."""
+        def one(r, sql, args):
+            cur = r._conn.cursor()
+            try:
+                cur.execute(sql, args)
+                return cur.fetchone()
+            finally:
+                cur.close()
+        rows = list(self._pool.map(lambda q: self._with_reader(one, *q), queries)) if self._pool \
+            else [self._with_reader(one, *q) for q in queries]
+        lo = [r[0] for r in rows if r[0] is not None]
+        hi = [r[1] for r in rows if r[1] is not None]
+        return (min(lo) if lo else None, max(hi) if hi else None)
+
+    def read_all(self, sql: str, arg_lists, names: list[str], text_names: list[str]):
+        """Yield ``(args, columns or None)`` for each argument list, in the given order (see
+        :meth:`RangeReader.read`), with up to ``2 * threads`` ranges read ahead."""
+        def task(args):
+            return self._with_reader(lambda r: r.read(sql, args, names, text_names))
+        if self._pool is None:
+            for args in arg_lists:
+                yield args, task(args)
+            return
+        ahead = deque()
+        it = iter(arg_lists)
+        for args in it:
+            ahead.append((args, self._pool.submit(task, args)))
+            if len(ahead) >= 2 * self.threads:
+                break
+        while ahead:
+            args, fut = ahead.popleft()
+            nxt = next(it, None)
+            if nxt is not None:
+                ahead.append((nxt, self._pool.submit(task, nxt)))
+            yield args, fut.result()
+
+    def close(self) -> None:
+        if getattr(self, "_pool", None) is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+        for r in self._all:
+            r.close()

@@ -500,28 +500,3 @@ def cstr_kernel(y, sigma, acc, has_acc, W, PW, Pvol, Z, Exi, obs, max_iter, tol,
                    imbalance, imbalance_sd, imbalance_scale, converged, iterations)
             for k in range(kk):
                 ok[t0 + k] = good[k]
-
-
-@nb.njit(cache=True, parallel=True)
-def input_status(y, sigma, status):
-    """Status of every value (0 measured, 1 missing = NaN, 2 fixed = sigma 0) into ``status``
-    (T, n) int8, in one pass; returns the numbers of infinite values and of sigmas that are
-    not finite and >= 0 where the value is finite (the caller reports them)."""
-    T, n = y.shape
-    n_inf = 0
-    n_bad = 0
-    for t in nb.prange(T):
-        for j in range(n):
-            v = y[t, j]
-            s = sigma[t, j]
-            if math.isnan(v):
-                status[t, j] = 1
-            elif math.isinf(v):
-                n_inf += 1
-                status[t, j] = 1
-            elif not (s >= 0.0 and s < math.inf):
-                n_bad += 1
-                status[t, j] = 0
-            else:
-                status[t, j] = 2 if s == 0.0 else 0
-    return n_inf, n_bad

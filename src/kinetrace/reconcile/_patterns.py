@@ -12,7 +12,6 @@ from __future__ import annotations
 import numpy as np
 
 from ._errors import ReconciliationError
-from ._compiled import input_status
 from ._correlated import correlated_kernel
 from ._kernel import _mv, wls_kernel
 
@@ -35,8 +34,7 @@ def check_inputs(y, sigma, names):
         ) from None
     y = np.ascontiguousarray(y)
     sigma = np.ascontiguousarray(sigma)
-    status = np.empty((T, n), np.int8)
-    n_inf, n_bad = input_status(y, sigma, status)
+    status, n_inf, n_bad = input_status(y, sigma)
     if n_inf:
         t, j = np.argwhere(np.isinf(y))[0]
         raise ReconciliationError(f"measurement of {names[j]!r} at step {t} is infinite; use NaN for missing")
@@ -48,6 +46,20 @@ def check_inputs(y, sigma, names):
             f"(0 = known exactly) [{n_bad} bad entries in all]"
         )
     return y, sigma, status
+
+
+def input_status(y, sigma):
+    """Status of every value (0 measured, 1 missing = NaN, 2 fixed = sigma 0), (T, n) int8, and
+    the numbers of infinite values and of sigmas that are not finite and >= 0 where the value is
+    finite (the caller reports them). Whole-array numpy: no compiler start-up on the paths that
+    never reach the compiled kernel."""
+    nan = np.isnan(y)
+    inf = np.isinf(y)
+    with np.errstate(invalid="ignore"):
+        good = (sigma >= 0.0) & (sigma < np.inf)          # False for a NaN sigma
+    status = np.where(nan | inf, np.int8(MISSING), np.where(good & (sigma == 0.0), np.int8(FIXED),
+                                                            np.int8(MEASURED))).astype(np.int8, copy=False)
+    return status, int(inf.sum()), int((~(nan | inf) & ~good).sum())
 
 
 def _cols0(a, idx):

@@ -7,7 +7,6 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from ._compiled import cstr_kernel
 from ._errors import ReconciliationError
 from ._kernel import _projection, row_scale
 from ._linearisation import iterate, pop_convergence
@@ -259,6 +258,7 @@ class CSTRBalances:
     def _compiled(self, y, sigma, accumulation, kern, max_iter, tol, out):
         """Solve the steps ``kern`` (nothing missing) with the compiled kernel into ``out``;
         return the mask of steps solved (a rank-deficient step is left to the numpy path)."""
+        from ._compiled import cstr_kernel   # numba starts here, only where the kernel is used
         every = bool(kern.all())
         idx = slice(None) if every else np.flatnonzero(kern)
         yk, sk = (y, sigma) if every else (y[idx], sigma[idx])
