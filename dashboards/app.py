@@ -14,11 +14,11 @@ for p in (HERE, HERE.parent / "src"):
 
 import streamlit as st  # noqa: E402
 
-st.set_page_config(page_title="kinetrace reactor watch", page_icon=":material/science:", layout="wide")
+st.set_page_config(page_title="kinetrace reactor ledger", page_icon=":material/science:", layout="wide")
 
 PAGES = [
-    st.Page(str(HERE / "views" / "overview.py"), title="Plant at a glance", icon=":material/factory:",
-            url_path="glance", default=True),
+    st.Page(str(HERE / "views" / "overview.py"), title="Morning verdict", icon=":material/factory:",
+            url_path="verdict", default=True),
     st.Page(str(HERE / "views" / "unit.py"), title="Reactor trends", icon=":material/show_chart:",
             url_path="trends"),
     st.Page(str(HERE / "views" / "balances.py"), title="Balances and sensors", icon=":material/balance:",
@@ -32,5 +32,5 @@ PAGES = [
 ]
 
 nav = st.navigation(PAGES)
-st.sidebar.caption("kinetrace reactor watch: read-only view of the results store.")
+st.sidebar.caption("kinetrace reactor ledger: read-only view of the results store.")
 nav.run()

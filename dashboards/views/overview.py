@@ -1,4 +1,4 @@
-"""Plant at a glance: every unit's production against target, activity, forecast, alarms, data quality."""
+"""Morning verdict: every unit's production against target, activity, forecast, alarms, data quality."""
 
 import numpy as np
 import pandas as pd
@@ -7,7 +7,7 @@ import streamlit as st
 from kinedash import cached, ui
 from kinedash.display import fmt, quality_kinds
 
-st.title("Plant at a glance")
+st.title("Morning verdict")
 url = ui.store_url()
 units = cached.units(url)
 if not units:

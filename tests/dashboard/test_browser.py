@@ -91,7 +91,7 @@ def test_overview(browser_page, served, store):
     expect(metric_value(page, "R-210 produced")).to_have_text(f"{daily['production_kg'].iloc[-1] / 1000:.2f}")
     click_radio(page, "last 7 days")
     expect(metric_value(page, "R-210 produced")).to_have_text(f"{daily['production_kg'].iloc[-7:].mean() / 1000:.2f}")
-    finish(page, "01_plant_at_a_glance")
+    finish(page, "01_morning_verdict")
 
 
 def test_reactor_trends(browser_page, served, store):
