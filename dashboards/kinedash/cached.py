@@ -112,3 +112,17 @@ def verdicts(url: str) -> list[tuple[str, str, str]]:
     except ReportError:
         return []
     return [(u.unit, u.verdict.state, u.verdict.sentence) for u in content.units if u.verdict is not None]
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def morning(url: str):
+    """Everything the first page says, gathered by the report's own :func:`kinetrace.report.collect`
+    from the store (verdicts, open alarms, forecasts, 30-day activity, the last complete run), with
+    the site's time zone; None when the store holds no daily rows yet."""
+    from kinetrace.report import ReportError, collect
+
+    tz, production_unit = source.site_settings()
+    try:
+        return collect(store_for(url), tz=tz, production_unit=production_unit)
+    except ReportError:
+        return None
