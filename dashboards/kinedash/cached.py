@@ -126,3 +126,15 @@ def morning(url: str):
         return collect(store_for(url), tz=tz, production_unit=production_unit)
     except ReportError:
         return None
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def unit_context(unit: str) -> dict:
+    """The configuration's plan feed rate and catalyst changes of a unit (see :func:`kinedash.source.unit_context`)."""
+    return source.unit_context(unit)
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def site_settings() -> tuple[str, str]:
+    """The site's time zone and production unit (see :func:`kinedash.source.site_settings`)."""
+    return source.site_settings()

@@ -113,7 +113,7 @@ def _local_naive(index, tz: str):
     return pd.DatetimeIndex(index).tz_convert(tz).tz_localize(None)
 
 
-def spark_production(rows: pd.DataFrame, *, domain, tz: str, mass_factor: float = 1e-3, height: int = 120):
+def spark_production(rows: pd.DataFrame, *, domain, tz: str, mass_factor: float = 1e-3, height: int = 150):
     """Sparkline of daily production against the day's target (dashed step): a mark per day, a green
     square at or above target, a rust triangle pointing down below it (shape and colour).
 
@@ -155,7 +155,7 @@ def spark_production(rows: pd.DataFrame, *, domain, tz: str, mass_factor: float 
     return alt.layer(target, line, bars).properties(height=height)
 
 
-def spark_activity(series: pd.Series, *, needed: float | None, domain, tz: str, height: int = 120):
+def spark_activity(series: pd.Series, *, needed: float | None, domain, tz: str, height: int = 150):
     """Sparkline of catalyst activity (hourly means) with the activity needed for the target as a dashed rule.
 
     Parameters
