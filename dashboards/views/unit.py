@@ -80,8 +80,10 @@ except UnitError:
 # ---- the context every panel shows
 steady = data.get("steady")
 windows = windows_of(steady["lo"]) if steady is not None else None
-data_end = max((f.index[-1] for v, f in data.items() if isinstance(f, pd.DataFrame) and len(f)), default=end)
-unsteady = complement(windows, start, min(end, data_end + pd.Timedelta("1us"))) if windows is not None else None
+frames_read = [f for f in data.values() if isinstance(f, pd.DataFrame) and len(f)]
+data_start = min((f.index[0] for f in frames_read), default=start)
+data_end = max((f.index[-1] for f in frames_read), default=end)
+unsteady = complement(windows, max(start, data_start), min(end, data_end)) if windows is not None else None
 down = windows_of(1.0 - data["running"]["hi"]) if "running" in data else None
 fc = cached.forecasts(url, unit)
 frow = fc.iloc[-1] if len(fc) else None
