@@ -78,7 +78,8 @@ def projection(t0, a0: float, needed: float, t1, n: int = 48) -> pd.DataFrame:
     Returns
     -------
     DataFrame
-        ``value`` on a UTC index from ``t0`` to ``t1``; empty when the inputs do not make a line.
+        ``value`` on a UTC index from ``t0`` to ``t1``; empty when the inputs do not make a line
+        (no crossing time, ``t1`` not after ``t0``, or ``a0`` not above the need).
 
     >>> p = projection(pd.Timestamp("2026-12-01", tz="UTC"), 0.8, 0.4, pd.Timestamp("2026-12-11", tz="UTC"), n=3)
     >>> [round(v, 4) for v in p["value"]]
@@ -87,7 +88,7 @@ def projection(t0, a0: float, needed: float, t1, n: int = 48) -> pd.DataFrame:
     if t1 is None or pd.isna(t1) or not (np.isfinite(a0) and np.isfinite(needed)) or a0 <= 0 or needed <= 0:
         return pd.DataFrame({"value": []}, index=pd.DatetimeIndex([], tz="UTC"))
     t0, t1 = pd.Timestamp(t0), pd.Timestamp(t1)
-    if t1 <= t0:
+    if t1 <= t0 or a0 <= needed:       # a crossing ahead needs a value above the need today
         return pd.DataFrame({"value": []}, index=pd.DatetimeIndex([], tz="UTC"))
     f = np.linspace(0.0, 1.0, n)
     idx = pd.DatetimeIndex(t0 + (t1 - t0) * f)

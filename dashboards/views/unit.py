@@ -46,8 +46,9 @@ wanted = ("conversion", k, k_lo, k_hi, "activity", "activity_fit", "activity_ban
 c_a, c_b = st.columns(2)
 steady_only = c_a.toggle("k_ref and activity from steady operation only", value=True, key="trend_steady_only",
                          help="Hides values back-calculated while the unit was not steady (start-ups, upsets).")
-reach = c_b.toggle("Time axis reaches the forecast crossing", value=True, key="trend_reach",
-                   help="Extends every panel's time axis to the stored crossing of the activity needed.")
+reach = c_b.toggle("Time axis reaches the forecast crossing", value=end - start >= pd.Timedelta(days=30),
+                   key="trend_reach", help="Extends every panel's time axis to the stored crossing of the activity "
+                   "needed (on by default for ranges of 30 days and more, where the data keep most of the width).")
 data = cached.chart_series(url, unit, wanted, start, end,
                            follow=((k_lo, k), (k_hi, k), ("activity_band_low", "activity_fit"),
                                    ("activity_band_high", "activity_fit")),
