@@ -62,7 +62,7 @@ def build_store() -> str:
 
 
 GLANCE_SHOWN = """() => { const h = document.querySelector('h1');
-  return h && h.innerText.includes('Morning verdict') && !document.querySelector('[data-testid=stVegaLiteChart]'); }"""
+  return h && h.innerText.includes('Morning verdict') && !document.querySelector('[data-stale=true]'); }"""
 
 
 def check_caption(page, bucketed: bool) -> None:

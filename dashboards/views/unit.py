@@ -116,7 +116,7 @@ prod_ratio = 100.0 * mean("production_mass") / mean("target_mass") if mean("targ
 m[3].metric("Production against target in range [%]", fmt(prod_ratio, ".1f"))
 span = "buckets of the range (mean line, min/max envelope)" if data["bucketed"] else "samples (LTTB-thinned)"
 n_unsteady = 0 if unsteady is None else len(unsteady)
-st.caption(f"{unit}, {local_stamp(start, tz)} to {local_stamp(min(end, data_end), tz)}; panels show {span}"
+st.caption(f"{unit}, {local_stamp(start, tz)} to {local_stamp(min(end, data_end), tz)}; charts show {span}"
            + ("; k_ref and activity from steady rows only" if steady_only and "steady" in data else "") + ". "
            f"Shaded sand: not steady ({n_unsteady} stretch{'es' * (n_unsteady != 1)}); shaded slate: unit down. "
            "Green line: catalyst change; red dashed: alarm onset; orange dotted: expected crossing of the activity "
