@@ -62,7 +62,7 @@ def build_store() -> str:
 
 
 GLANCE_SHOWN = """() => { const h = document.querySelector('h1');
-  return h && h.innerText.includes('Plant at a glance') && !document.querySelector('[data-testid=stVegaLiteChart]'); }"""
+  return h && h.innerText.includes('Morning verdict') && !document.querySelector('[data-stale=true]'); }"""
 
 
 def check_caption(page, bucketed: bool) -> None:
@@ -96,7 +96,7 @@ def first_load(p, url: str, code: str) -> float:
 
 
 def in_app(p, url: str, code: str) -> list[float]:
-    """Sidebar navigation Plant at a glance -> Reactor trends, range kept in the session. [s]"""
+    """Sidebar navigation Morning verdict -> Reactor trends, range kept in the session. [s]"""
     proc, base = serve.start({"KINETRACE_STORE_URL": url})
     times = []
     try:
@@ -106,7 +106,7 @@ def in_app(p, url: str, code: str) -> list[float]:
             page.wait_for_function(DRAWN, polling=20)
             check_caption(page, code == "365d")
             for _ in range(REPEATS):
-                page.locator("[data-testid=stSidebarNavLink]", has_text="Plant at a glance").click()
+                page.locator("[data-testid=stSidebarNavLink]", has_text="Morning verdict").click()
                 page.wait_for_function(GLANCE_SHOWN, polling=20)
                 t0 = time.perf_counter()
                 page.locator("[data-testid=stSidebarNavLink]", has_text="Reactor trends").click()

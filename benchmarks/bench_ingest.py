@@ -30,18 +30,18 @@ sys.path.insert(0, str(ROOT / "src"))
 
 #: 12 tags of an invented reactor R-220 (Calder Bank demo plant): name, role, unit, species, base value, noise.
 TAGS = [
-    ("CB2:R220_FEED.GPM", "feed_flow", "gpm", None, 20.0, 0.2),
-    ("CB2:R220_PROD.GPM", "outlet_flow", "gpm", None, 20.0, 0.2),
-    ("CB2:R220_TEMP.F", "temperature", "degF", None, 150.0, 0.5),
-    ("CB2:R220_TEMP_B.F", "temperature", "degF", None, 150.5, 0.5),
-    ("CB2:R220_AA.AN", "outlet_conc", "mol/L", "AA", 0.6, 0.01),
-    ("CB2:R220_ACOH.AN", "outlet_conc", "mol/L", "AcOH", 1.8, 0.02),
-    ("CB2:R220_W.AN", "outlet_conc", "mol/L", "W", 4.9, 0.03),
-    ("CB2:R220_FAA.AN", "feed_conc", "mol/L", "AA", 1.5, 0.01),
-    ("CB2:R220_FW.AN", "feed_conc", "mol/L", "W", 6.0, 0.03),
-    ("CB2:R220_JKT_IN.F", "temperature", "degF", None, 120.0, 0.5),
-    ("CB2:R220_JKT_OUT.F", "temperature", "degF", None, 135.0, 0.5),
-    ("CB2:R220_RECY.GPM", "feed_flow", "gpm", None, 5.0, 0.1),
+    ("CB2~R220~FEED~GPM", "feed_flow", "gpm", None, 20.0, 0.2),
+    ("CB2~R220~PROD~GPM", "outlet_flow", "gpm", None, 20.0, 0.2),
+    ("CB2~R220~TEMP~F", "temperature", "degF", None, 150.0, 0.5),
+    ("CB2~R220~TEMP_B~F", "temperature", "degF", None, 150.5, 0.5),
+    ("CB2~R220~AA~AN", "outlet_conc", "mol/L", "AA", 0.6, 0.01),
+    ("CB2~R220~ACOH~AN", "outlet_conc", "mol/L", "AcOH", 1.8, 0.02),
+    ("CB2~R220~W~AN", "outlet_conc", "mol/L", "W", 4.9, 0.03),
+    ("CB2~R220~FAA~AN", "feed_conc", "mol/L", "AA", 1.5, 0.01),
+    ("CB2~R220~FW~AN", "feed_conc", "mol/L", "W", 6.0, 0.03),
+    ("CB2~R220~JKT_IN~F", "temperature", "degF", None, 120.0, 0.5),
+    ("CB2~R220~JKT_OUT~F", "temperature", "degF", None, 135.0, 0.5),
+    ("CB2~R220~RECY~GPM", "feed_flow", "gpm", None, 5.0, 0.1),
 ]
 
 
@@ -179,7 +179,7 @@ def run_one(method: str, path: str, grid_s: int, warm: bool = True) -> dict:
         del df
         w = w.resample(f"{grid_s}s").mean()
         frame_mb = values_mb = w.memory_usage(deep=True).sum() / 2**20
-        shape, check = w.shape, float(np.nanmean(w["CB2:R220_FEED.GPM"].to_numpy()))
+        shape, check = w.shape, float(np.nanmean(w["CB2~R220~FEED~GPM"].to_numpy()))
     else:
         raise ValueError(f"unknown method {method!r}")
     dt = time.perf_counter() - t0

@@ -14,11 +14,23 @@ for p in (HERE, HERE.parent / "src"):
 
 import streamlit as st  # noqa: E402
 
-st.set_page_config(page_title="kinetrace reactor watch", page_icon=":material/science:", layout="wide")
+def _icon():
+    """The tab icon drawn here (a level bar on a base line, our own mark), so the browser fetches
+    nothing from outside the machine (a named material icon is loaded from an internet host)."""
+    from PIL import Image, ImageDraw
+
+    im = Image.new("RGBA", (32, 32), (0, 0, 0, 0))
+    d = ImageDraw.Draw(im)
+    d.rectangle([6, 12, 26, 20], fill="#2e7d6b")
+    d.rectangle([3, 24, 29, 26], fill="#1f2b33")
+    return im
+
+
+st.set_page_config(page_title="kinetrace reactor ledger", page_icon=_icon(), layout="wide")
 
 PAGES = [
-    st.Page(str(HERE / "views" / "overview.py"), title="Plant at a glance", icon=":material/factory:",
-            url_path="glance", default=True),
+    st.Page(str(HERE / "views" / "overview.py"), title="Morning verdict", icon=":material/factory:",
+            url_path="verdict", default=True),
     st.Page(str(HERE / "views" / "unit.py"), title="Reactor trends", icon=":material/show_chart:",
             url_path="trends"),
     st.Page(str(HERE / "views" / "balances.py"), title="Balances and sensors", icon=":material/balance:",
@@ -32,5 +44,5 @@ PAGES = [
 ]
 
 nav = st.navigation(PAGES)
-st.sidebar.caption("kinetrace reactor watch: read-only view of the results store.")
+st.sidebar.caption("kinetrace reactor ledger: read-only view of the results store.")
 nav.run()

@@ -6,6 +6,8 @@ typed on a page) so two stores never share a cache entry.
 
 from __future__ import annotations
 
+import os
+
 import pandas as pd
 import streamlit as st
 
@@ -112,3 +114,43 @@ def verdicts(url: str) -> list[tuple[str, str, str]]:
     except ReportError:
         return []
     return [(u.unit, u.verdict.state, u.verdict.sentence) for u in content.units if u.verdict is not None]
+
+
+def morning(url: str):
+    """Everything the first page says, gathered by the report's own :func:`kinetrace.report.collect`
+    from the store (verdicts, open alarms, forecasts, 30-day activity, the last complete run), with
+    the site's time zone; None when the store holds no daily rows yet. Cached per store and configuration."""
+    return _morning(url, os.environ.get("KINETRACE_CONFIG", ""))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def _morning(url: str, config: str):
+    from kinetrace.report import ReportError, collect
+
+    tz, production_unit = source.site_settings({"KINETRACE_CONFIG": config} if config else {})
+    try:
+        return collect(store_for(url), tz=tz, production_unit=production_unit)
+    except ReportError:
+        return None
+
+
+def unit_context(unit: str) -> dict:
+    """The configuration's plan feed rate and catalyst changes of a unit (see :func:`kinedash.source.unit_context`),
+    cached per configuration file."""
+    return _unit_context(unit, os.environ.get("KINETRACE_CONFIG", ""))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def _unit_context(unit: str, config: str) -> dict:
+    return source.unit_context(unit, {"KINETRACE_CONFIG": config} if config else {})
+
+
+def site_settings() -> tuple[str, str]:
+    """The site's time zone and production unit (see :func:`kinedash.source.site_settings`), cached per
+    configuration file."""
+    return _site_settings(os.environ.get("KINETRACE_CONFIG", ""))
+
+
+@st.cache_data(ttl=TTL, show_spinner=False)
+def _site_settings(config: str) -> tuple[str, str]:
+    return source.site_settings({"KINETRACE_CONFIG": config} if config else {})

@@ -97,3 +97,89 @@ def chart_points(chart) -> int:
     """Rows of data a chart sends to the browser (all its datasets). [-]"""
     spec = chart.to_dict()
     return sum(len(v) for v in spec.get("datasets", {}).values())
+
+
+def _spark_x(domain, tz: str):
+    return alt.X("t:T", title=None, scale=alt.Scale(domain=[_vl_time(domain[0], tz), _vl_time(domain[1], tz)]),
+                 axis=alt.Axis(format="%d %b", tickCount=4, labelOverlap=True, grid=False))
+
+
+def _vl_time(ts, tz: str) -> str:
+    """A time as the naive local wall-clock ISO text Vega-Lite draws as given (no browser zone shift)."""
+    return pd.Timestamp(ts).tz_convert(tz).tz_localize(None).isoformat()
+
+
+def _local_naive(index, tz: str):
+    return pd.DatetimeIndex(index).tz_convert(tz).tz_localize(None)
+
+
+def spark_production(rows: pd.DataFrame, *, domain, tz: str, mass_factor: float = 1e-3, height: int = 150):
+    """Sparkline of daily production against the day's target (dashed step): a mark per day, a green
+    square at or above target, a rust triangle pointing down below it (shape and colour).
+
+    Parameters
+    ----------
+    rows : DataFrame
+        ``day`` (date), ``production_kg``, ``target_kg``. [kg]
+    domain : (Timestamp, Timestamp)
+        Time axis shared with the activity sparkline. [UTC]
+    tz : str
+        Site time zone of the axis.
+    mass_factor : float
+        Factor from kg to the shown mass (1e-3: t). [-]
+    """
+    from kinetrace.report.charts import COLOURS as RC
+
+    days = pd.to_datetime(pd.Series(rows["day"]).astype(str)) + pd.Timedelta(hours=12)
+    d = pd.DataFrame({"t": days.to_numpy(), "production": rows["production_kg"].to_numpy(float) * mass_factor,
+                      "target": rows["target_kg"].to_numpy(float) * mass_factor})
+    d["state"] = np.where(d["production"] >= d["target"], "on target", "below target")
+    x = _spark_x(domain, tz)
+    tip = [alt.Tooltip("t:T", format="%d %b %Y", title="day"), alt.Tooltip("production:Q", format=",.2f"),
+           alt.Tooltip("target:Q", format=",.2f"), "state:N"]
+    lo = float(np.nanmin(np.r_[d["production"], d["target"]])) if len(d) else 0.0
+    hi = float(np.nanmax(np.r_[d["production"], d["target"]])) if len(d) else 1.0
+    pad = 0.15 * (hi - lo) if hi > lo else 0.05 * max(abs(hi), 1.0)
+    y = alt.Y("production:Q", title=None, scale=alt.Scale(domain=[lo - pad, hi + pad]),
+              axis=alt.Axis(tickCount=3, format="~g"))
+    line = alt.Chart(d).mark_line(color=RC["line"], strokeWidth=1.2).encode(x=x, y=y)
+    bars = alt.Chart(d).mark_point(filled=True, size=40, opacity=1).encode(
+        x=x, y=y, tooltip=tip,
+        shape=alt.Shape("state:N", legend=None, scale=alt.Scale(domain=["on target", "below target"],
+                                                               range=["square", "triangle-down"])),
+        color=alt.Color("state:N", legend=None, scale=alt.Scale(domain=["on target", "below target"],
+                                                               range=[RC["met"], RC["short"]])))
+    target = alt.Chart(d).mark_line(color=RC["target"], strokeDash=[4, 2], strokeWidth=1.5,
+                                    interpolate="step-after").encode(
+        x=x, y=alt.Y("target:Q", scale=alt.Scale(domain=[lo - pad, hi + pad])))
+    return alt.layer(target, line, bars).properties(height=height)
+
+
+def spark_activity(series: pd.Series, *, needed: float | None, domain, tz: str, height: int = 150):
+    """Sparkline of catalyst activity (hourly means) with the activity needed for the target as a dashed rule.
+
+    Parameters
+    ----------
+    series : Series
+        Activity on a UTC index. [-]
+    needed : float, optional
+        Activity needed for the target. [-]
+    """
+    from kinetrace.report.charts import COLOURS as RC
+
+    d = pd.DataFrame({"t": _local_naive(series.index, tz), "activity": series.to_numpy(float)})
+    lo = np.nanmin(d["activity"]) if len(d) else 0.0
+    hi = np.nanmax(d["activity"]) if len(d) else 1.0
+    if needed is not None and np.isfinite(needed):
+        lo, hi = min(lo, needed), max(hi, needed)
+    pad = 0.1 * (hi - lo) if hi > lo else 0.05
+    x = _spark_x(domain, tz)
+    y = alt.Y("activity:Q", title=None, scale=alt.Scale(domain=[lo - pad, hi + pad]),
+              axis=alt.Axis(tickCount=3, format=".2f"))
+    layers = [alt.Chart(d).mark_line(color=RC["line"], strokeWidth=1.5).encode(
+        x=x, y=y, tooltip=[alt.Tooltip("t:T", format="%d %b %H:%M"), alt.Tooltip("activity:Q", format=".3f")])]
+    if needed is not None and np.isfinite(needed):
+        layers.append(alt.Chart(pd.DataFrame({"activity": [float(needed)], "label": ["activity needed"]})).mark_rule(
+            color=RC["needed"], strokeDash=[5, 4], strokeWidth=1.5).encode(
+            y="activity:Q", tooltip=["label:N", alt.Tooltip("activity:Q", format=".3f")]))
+    return alt.layer(*layers).properties(height=height)

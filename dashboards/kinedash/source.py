@@ -324,3 +324,36 @@ def site_settings(environ=None) -> tuple[str, str]:
         return site.timezone, site.production_unit
     except (KinetraceError, OSError):
         return "UTC", "kg/d"
+
+
+def unit_context(unit: str, environ=None) -> dict:
+    """What the plant configuration says about a unit's operation, for the trends' context lines.
+
+    Parameters
+    ----------
+    unit : str
+        Unit id.
+    environ : mapping, optional
+        Environment naming the configuration (``KINETRACE_CONFIG``; default the demo plant).
+
+    Returns
+    -------
+    dict
+        ``plan_feed_flow`` [m3/s] or None, ``catalyst_changes`` (list of UTC Timestamps); empty
+        values when the configuration cannot be read or does not name the unit.
+    """
+    environ = os.environ if environ is None else environ
+    from kinetrace.config import load_config
+
+    out = {"plan_feed_flow": None, "catalyst_changes": []}
+    try:
+        cfg = load_config(Path(environ.get("KINETRACE_CONFIG") or DEFAULT_CONFIG))
+    except (KinetraceError, OSError):
+        return out
+    u = next((x for x in cfg.units if x.id == unit), None)
+    if u is None:
+        return out
+    out["plan_feed_flow"] = None if u.plan is None else u.plan.feed_flow
+    out["catalyst_changes"] = [pd.Timestamp(t).tz_convert("UTC") if pd.Timestamp(t).tzinfo else
+                               pd.Timestamp(t).tz_localize("UTC") for t in u.activity.catalyst_changes]
+    return out

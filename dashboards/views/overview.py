@@ -1,85 +1,112 @@
-"""Plant at a glance: every unit's production against target, activity, forecast, alarms, data quality."""
+"""Morning verdict: per unit, worst first, the verdict sentence of the check and the report with a
+status mark, 30 days of production against target and of activity against the activity needed,
+the open alarms by name with how long they have been open, and the forecast said once.
+
+Everything comes from the store through the report's own gathering (:func:`kinetrace.report.collect`):
+the page computes nothing of the pipeline. Times are the site's local time.
+"""
 
 import numpy as np
 import pandas as pd
 import streamlit as st
 
 from kinedash import cached, ui
+from kinedash.charts import spark_activity, spark_production
 from kinedash.display import fmt, quality_kinds
+from kinedash.morning import decline_words, forecast_words, how_long, local_stamp, run_words, status_badge
+from kinetrace.report.verdict import STATES, alarm_words
 
-st.title("Plant at a glance")
+#: Days of the sparklines. [d]
+SPARK_DAYS = 30
+
+st.title("Morning verdict")
 url = ui.store_url()
 units = cached.units(url)
 if not units:
     ui.not_available("Results", "the store holds no unit yet; run `kinetrace check`")
     st.stop()
+content = cached.morning(url)
+if content is None:
+    ui.not_available("The verdict", "the store holds no daily production rows yet; run `kinetrace check`")
+    st.stop()
+tz = content.tz
+st.caption(run_words(cached.runs(url), tz) + f" Times in the site's time zone ({tz}).")
 
-# the verdict of every unit first: the same sentence as the check's output and the report
-for _unit, state, sentence in cached.verdicts(url):
-    (st.success if state == "on target" else st.warning)(f"**{state}** — {sentence}")
+reports = sorted(content.units, key=lambda u: (STATES.index(u.status) if u.status in STATES else 0,
+                                               not (u.verdict is not None and u.verdict.attention), u.unit))
+need = [u.unit for u in reports if u.verdict is not None and u.verdict.attention]
+st.markdown(f"**{len(need)} of {len(reports)} units need attention**" + (f": {', '.join(need)}." if need else "."))
 
 period = st.radio("Production over", ["last day", "last 7 days"], horizontal=True, key="glance_period")
 n_days = 1 if period == "last day" else 7
 daily = cached.daily(url)
-forecasts = cached.forecasts(url)
-open_alarms = cached.alarms(url, state="open")
 quality = cached.quality(url)
 
-cols = st.columns(min(len(units), 3))
-for i, unit in enumerate(units):
-    with cols[i % len(cols)].container(border=True):
-        st.subheader(unit)
-        d = daily[daily["unit_id"] == unit].tail(n_days)
-        if len(d):
-            prod, target = d["production_kg"].sum() / n_days / 1000.0, d["target_kg"].sum() / n_days / 1000.0
-            ratio = 100.0 * prod / target if target > 0 else np.nan
-            st.metric(f"{unit} produced, mean of {period} [t/d]", fmt(prod, ".2f"),
-                      delta=f"{ratio - 100:+.1f} % against target" if np.isfinite(ratio) else None,
-                      delta_color="normal")
-            st.caption(f"target {fmt(target, '.2f', 't/d')}; days {d['day'].iloc[0]} to {d['day'].iloc[-1]}")
-        else:
-            ui.not_available("Production against target", "no daily production rows")
-        last = cached.watermark(url, unit)
-        cat = cached.catalog(url, unit)
-        if last is not None and "activity" in set(cat["variable"]):
-            end = pd.Timestamp(last) + pd.Timedelta("1us")
-            a = cached.series(url, unit, ("activity",), end - pd.Timedelta(days=8), end)["activity"].dropna()
-            now = a[a.index >= end - pd.Timedelta(days=1)].mean()
-            before = a[(a.index < end - pd.Timedelta(days=7))].mean()
-            per_week = now - before if np.isfinite(before) else np.nan
-            st.metric(f"{unit} catalyst activity, last 24 h mean [-]", fmt(now, ".3f"),
-                      delta=None if not np.isfinite(per_week) else f"{per_week:+.3f} in 7 days",
-                      delta_color="normal")
-        else:
-            ui.not_available("Catalyst activity")
-        f = forecasts[forecasts["unit_id"] == unit]
-        if len(f):
-            row = f.iloc[-1]
-            miss = ui.day_text(row["miss_expected"]) if pd.notna(row["miss_expected"]) else "none in horizon"
-            st.metric(f"{unit} expected first day below target", miss)
-            span = (f"interval {ui.day_text(row['miss_earliest'])} to {ui.day_text(row['miss_latest'])}; "
-                    if pd.notna(row["miss_earliest"]) else "")
-            st.caption(span + str(row["statement"]))
-        else:
-            ui.not_available("Forecast")
-        n_open = int((open_alarms["unit_id"] == unit).sum())
-        q = quality[quality["unit_id"] == unit]
-        if len(q):
-            latest = q[q["period_start"] == q["period_start"].max()]
-            kinds = quality_kinds(latest["measure"])
-            good = latest.loc[latest["measure"] == "good", "count"].sum()
-            read = latest.loc[latest["measure"] == "rows_read", "count"].sum() \
-                if (latest["measure"] == "rows_read").any() else good + latest.loc[kinds == "rule", "count"].sum()
-            share = 100.0 * good / read if read else np.nan
-        else:
-            share = np.nan
-        c1, c2 = st.columns(2)
-        if len(q):
-            c2.caption(f"period from {latest['period_start'].iloc[0]:%Y-%m-%d %H:%M} UTC")
-        c1.metric(f"{unit} open alarms", str(n_open))
-        c2.metric(f"{unit} good readings [%]", fmt(share, ".1f"))
-
-runs = cached.runs(url)
-if len(runs):
-    r = runs.iloc[-1]
-    st.caption(f"Newest run {r['run_id']} ({r['status']}), window {r['window_start']} to {r['window_end']}.")
+for u in reports:
+    unit, v = u.unit, u.verdict
+    with st.container(border=True):
+        state = v.state if v is not None else u.status
+        head = v.headline[len(v.state):].strip() if v is not None else ""
+        st.markdown(f'{status_badge(state)}&nbsp;&nbsp;<span style="font-size:1.45rem;font-weight:700">{unit}</span>'
+                    f'&nbsp;&nbsp;<span style="font-size:1.15rem">{head}</span>', unsafe_allow_html=True)
+        if v is not None:
+            st.markdown(v.sentence)
+        c_left, c_facts = st.columns([10, 4])
+        c_prod, c_act = c_left.columns(2)
+        rows = daily[daily["unit_id"] == unit]
+        if v is not None:
+            rows = rows[rows["day"] <= v.day]
+        end = content.span[1]
+        dom = (end - pd.Timedelta(days=SPARK_DAYS), end)
+        with c_prod:
+            st.caption(f"Production per day, last {SPARK_DAYS} days, against target (dashed) [t/d]: "
+                       "square on target, triangle below")
+            if len(rows):
+                st.altair_chart(spark_production(rows.tail(SPARK_DAYS), domain=dom, tz=tz), key=f"spark_prod_{unit}")
+            else:
+                ui.not_available("Production against target", "no daily production rows")
+        with c_act:
+            needed = u.forecast.get("activity_needed") if u.forecast else None
+            st.caption("Catalyst activity, hourly, against the activity needed (dashed) [-]")
+            if u.trend is not None and len(u.trend):
+                st.altair_chart(spark_activity(u.trend, needed=needed, domain=dom, tz=tz), key=f"spark_act_{unit}")
+            else:
+                ui.not_available("Catalyst activity")
+        with c_left:
+            ref = u.watermark if u.watermark is not None and not pd.isna(u.watermark) else content.span[1]
+            if len(u.alarms_open):
+                lines = [f"- {alarm_words(a)}: open {how_long(a['detected'], ref)} "
+                         f"(detected {local_stamp(a['detected'], tz)})" for a in u.alarms_open.to_dict("records")]
+                st.markdown(f"**Open alarms ({len(lines)}):**\n" + "\n".join(lines))
+            else:
+                st.markdown("**Open alarms:** none")
+        with c_facts:
+            d = rows.tail(n_days)
+            if len(d):
+                prod, target = d["production_kg"].sum() / n_days / 1000.0, d["target_kg"].sum() / n_days / 1000.0
+                ratio = 100.0 * prod / target if target > 0 else np.nan
+                st.metric(f"{unit} produced, mean of {period} [t/d]", fmt(prod, ".2f"),
+                          delta=f"{ratio - 100:+.1f} % against target {target:.2f} t/d" if np.isfinite(ratio)
+                          else None, delta_color="normal")
+            fc_text = forecast_words(v, u.forecast, tz)
+            st.markdown(f"**First day below target:** {fc_text}")
+            params = u.parameters.set_index("name") if len(u.parameters) else pd.DataFrame()
+            if u.forecast:
+                kd_name = next((n for n in ("decay_kd", "decay:kd") if n in params.index), None)
+                kd = params.loc[kd_name, "value"] if kd_name else None
+                method = params.loc[kd_name, "method"] if kd_name else ""
+                words = decline_words(kd, str(method))
+                st.caption(f"Catalyst activity {fmt(u.forecast.get('activity_now'), '.3f')} against "
+                           f"{fmt(u.forecast.get('activity_needed'), '.3f')} needed"
+                           + (f"; {words}" if words else "") + ".")
+            q = quality[quality["unit_id"] == unit]
+            if len(q):
+                latest = q[q["period_start"] == q["period_start"].max()]
+                kinds = quality_kinds(latest["measure"])
+                good = latest.loc[latest["measure"] == "good", "count"].sum()
+                read = latest.loc[latest["measure"] == "rows_read", "count"].sum() \
+                    if (latest["measure"] == "rows_read").any() else good + latest.loc[kinds == "rule", "count"].sum()
+                share = 100.0 * good / read if read else np.nan
+                st.caption(f"Good readings {fmt(share, '.1f', '%')} of the period from "
+                           f"{local_stamp(latest['period_start'].iloc[0], tz)}; last result "
+                           f"{local_stamp(u.watermark, tz)}.")

@@ -120,7 +120,9 @@ def fill_store(url: str, start="2026-09-01T00:00Z", end="2026-12-01T00:00Z", fre
             run.write_parameters(unit, parameter_rows(unit))
             last = frame.index[-1]
             run.write_forecast(unit, activity_now=float(frame["activity"].iloc[-24:].mean()),
-                               activity_needed=0.55, miss_earliest=end + pd.Timedelta(days=30 + 10 * i),
+                               # the need the invented decay exp(-0.007 t) reaches on the expected day
+                               activity_needed=float(np.exp(-0.007 * ((end - start).days + 38 + 10 * i))),
+                               miss_earliest=end + pd.Timedelta(days=30 + 10 * i),
                                miss_expected=end + pd.Timedelta(days=38 + 10 * i),
                                miss_latest=end + pd.Timedelta(days=47 + 10 * i),
                                statement=f"at the present decline {unit} falls below target in 30-47 days")

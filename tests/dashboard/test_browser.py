@@ -82,31 +82,74 @@ def click_radio(page, text: str):
     page.locator("[data-testid=stRadio] label", has_text=text).first.click()
 
 
+def offline(page) -> list:
+    """Block every request that does not go to the loopback server; returns the list of blocked URLs."""
+    blocked = []
+
+    def route(r):
+        url = r.request.url
+        if url.startswith(("http://127.0.0.1", "ws://127.0.0.1", "data:", "blob:")):
+            return r.continue_()
+        blocked.append(url)
+        return r.abort()
+
+    page.route("**/*", route)
+    return blocked
+
+
+def tall_screenshot(page, name: str, height: int):
+    """A screenshot of the whole page (Streamlit scrolls inside its own container: the viewport grows)."""
+    page.set_viewport_size({"width": 1400, "height": height})
+    page.wait_for_function("() => !document.querySelector('[data-stale=true]')")   # the rerun has finished
+    page.wait_for_timeout(800)
+    finish(page, name)
+    page.set_viewport_size({"width": 1400, "height": 1000})
+
+
 def test_overview(browser_page, served, store):
     from playwright.sync_api import expect
 
     page = browser_page
+    blocked = offline(page)
     daily = store.daily("R-210")
-    open_page(page, served, "", "R-210 produced")
+    open_page(page, served, "", "R-210 produced", charts=4)
     expect(metric_value(page, "R-210 produced")).to_have_text(f"{daily['production_kg'].iloc[-1] / 1000:.2f}")
     click_radio(page, "last 7 days")
     expect(metric_value(page, "R-210 produced")).to_have_text(f"{daily['production_kg'].iloc[-7:].mean() / 1000:.2f}")
-    finish(page, "01_plant_at_a_glance")
+    # a status mark (shape and colour) per unit, the open alarm named with how long, the run read
+    expect(page.locator("svg[aria-label='on target']")).to_have_count(2)
+    expect(page.get_by_text("R210-FT-101 reads about +0.0 % since 24 Nov: open 5 d", exact=False)).to_be_visible()
+    expect(page.get_by_text("expected 8 Jan 2027 (interval 31 Dec 2026 to 17 Jan 2027)", exact=False)).to_be_visible()
+    expect(page.get_by_text("Results of run 1, the last complete run", exact=False)).to_be_visible()
+    assert "+00:00" not in page.locator("[data-testid=stMain]").inner_text()
+    tall_screenshot(page, "01_morning_verdict", 1800)
+    page.unroute_all()
+    assert blocked == [], blocked
 
 
 def test_reactor_trends(browser_page, served, store):
     from playwright.sync_api import expect
 
     page = browser_page
-    open_page(page, served, "trends", "Mean conversion", charts=4)
+    blocked = offline(page)
+    open_page(page, served, "trends", "Mean conversion", charts=7)
     end = END - pd.Timedelta(hours=1) + pd.Timedelta("1us")
-    for days in (30, 7):
-        if days == 7:
-            click_radio(page, "last 7 days")
-        conv = store.series("R-210", ["conversion"], end - pd.Timedelta(days=days), end)["conversion"].mean()
-        expect(metric_value(page, "Mean conversion")).to_have_text(f"{conv:.4f}")
-    page.wait_for_function("() => document.querySelectorAll('[data-testid=stVegaLiteChart] svg').length >= 4")
-    finish(page, "02_reactor_trends")
+    conv = store.series("R-210", ["conversion"], end - pd.Timedelta(days=30), end)["conversion"].mean()
+    expect(metric_value(page, "Mean conversion")).to_have_text(f"{conv:.4f}")
+    # over 30 days the shared time axis reaches the forecast crossing (January 2027) until the toggle
+    # takes it back to the last result
+    ticks = page.locator("[data-testid=stVegaLiteChart] svg text", has_text="Jan")
+    expect(ticks.first).to_be_visible()
+    tall_screenshot(page, "02_reactor_trends", 2600)
+    page.get_by_text("Time axis reaches the forecast crossing").click()
+    expect(ticks).to_have_count(0)
+    click_radio(page, "last 7 days")
+    conv = store.series("R-210", ["conversion"], end - pd.Timedelta(days=7), end)["conversion"].mean()
+    expect(metric_value(page, "Mean conversion")).to_have_text(f"{conv:.4f}")
+    page.wait_for_function("() => document.querySelectorAll('[data-testid=stVegaLiteChart] svg').length >= 7")
+    tall_screenshot(page, "02_reactor_trends_7_days", 2600)
+    page.unroute_all()
+    assert blocked == [], blocked
 
 
 def test_balances(browser_page, served, store):

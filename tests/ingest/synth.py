@@ -16,13 +16,13 @@ DEMO = Path(__file__).resolve().parents[2] / "config" / "demo_plant.toml"
 
 #: Tags of R-220 (US units) with a base value in their own unit and a noise level.
 R220 = {
-    "CB2:R220_FEED.GPM": (20.0, 0.2),
-    "CB2:R220_PROD.GPM": (20.0, 0.2),
-    "CB2:R220_TEMP.F": (150.0, 0.5),
-    "CB2:R220_AA.AN": (0.6, 0.01),
-    "CB2:R220_ACOH.AN": (1.8, 0.02),
+    "CB2~R220~FEED~GPM": (20.0, 0.2),
+    "CB2~R220~PROD~GPM": (20.0, 0.2),
+    "CB2~R220~TEMP~F": (150.0, 0.5),
+    "CB2~R220~AA~AN": (0.6, 0.01),
+    "CB2~R220~ACOH~AN": (1.8, 0.02),
 }
-ANALYZERS = {"CB2:R220_AA.AN", "CB2:R220_ACOH.AN"}
+ANALYZERS = {"CB2~R220~AA~AN", "CB2~R220~ACOH~AN"}
 
 
 def demo_raw() -> dict:

@@ -18,7 +18,7 @@ from kinetrace.ingest.files import LONG_LINE, complete_block, long_line_spans, r
 from .synth import config
 
 HEADER = "timestamp,tag,value,quality\n"
-FEED = "CB2:R220_FEED.GPM"
+FEED = "CB2~R220~FEED~GPM"
 
 
 def _lines(n: int, start_minute: int = 0) -> str:

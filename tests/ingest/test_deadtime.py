@@ -68,20 +68,20 @@ def test_estimate_skips_missing_values_and_checks_inputs():
 
 def test_configured_dead_time_moves_analyzer_readings_back(tmp_path):
     df = readings(hours=3, seed=2)
-    aa = df["tag"] == "CB2:R220_AA.AN"
+    aa = df["tag"] == "CB2~R220~AA~AN"
     df.loc[aa, "value"] = np.where(df.loc[aa, "timestamp"] >= pd.Timestamp("2026-09-01T01:30Z"), 1.0, 0.5)
     write_long(df, tmp_path / "x.csv")
 
     def with_dead_time(raw):
         for t in raw["units"][1]["tags"]:
-            if t["tag"] == "CB2:R220_AA.AN":
+            if t["tag"] == "CB2~R220~AA~AN":
                 t["dead_time"] = "20 min"
 
     plain = read_unit(config({"kind": "csv", "path": "x.csv", "good_quality": ["OK"]}, grid="10 min"), "R-220",
                       config_path=tmp_path / "p.toml")
     shifted = read_unit(config({"kind": "csv", "path": "x.csv", "good_quality": ["OK"]}, grid="10 min",
                                tweak=with_dead_time), "R-220", config_path=tmp_path / "p.toml")
-    step_plain = plain.values["CB2:R220_AA.AN"].diff().idxmax()
-    step_shift = shifted.values["CB2:R220_AA.AN"].diff().idxmax()
+    step_plain = plain.values["CB2~R220~AA~AN"].diff().idxmax()
+    step_shift = shifted.values["CB2~R220~AA~AN"].diff().idxmax()
     assert step_plain == pd.Timestamp("2026-09-01T01:30Z")
     assert step_plain - step_shift == pd.Timedelta("20 min")

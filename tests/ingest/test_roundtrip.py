@@ -52,7 +52,7 @@ def test_reference_is_sane(reference):
     v = reference.values
     assert len(v) == 24 and v.notna().all().all() and reference.valid.all().all()
     # 20 gpm is 1.2618e-3 m3/s (NIST SP 811: US gallon = 3.785411784e-3 m3, exact)
-    assert v["CB2:R220_FEED.GPM"].mean() == pytest.approx(20 * 3.785411784e-3 / 60, rel=2e-3)
+    assert v["CB2~R220~FEED~GPM"].mean() == pytest.approx(20 * 3.785411784e-3 / 60, rel=2e-3)
     # R-220 volume is fixed: 1500 US gallons (NIST SP 811, exact factor)
     assert reference.volume.iloc[0] == pytest.approx(1500 * 3.785411784e-3, rel=1e-15)
 
@@ -64,9 +64,9 @@ def test_wide_csv(df, tmp_path, reference):
 
 def test_wide_csv_with_units_row_and_banner(df, tmp_path, reference):
     p = write_wide(df, tmp_path / "w.csv", units={t: cfg_unit for t, cfg_unit in
-                                                 [("CB2:R220_FEED.GPM", "gpm"), ("CB2:R220_PROD.GPM", "gal/min"),
-                                                  ("CB2:R220_TEMP.F", "degF"), ("CB2:R220_AA.AN", "mol/L"),
-                                                  ("CB2:R220_ACOH.AN", "mol/L")]})
+                                                 [("CB2~R220~FEED~GPM", "gpm"), ("CB2~R220~PROD~GPM", "gal/min"),
+                                                  ("CB2~R220~TEMP~F", "degF"), ("CB2~R220~AA~AN", "mol/L"),
+                                                  ("CB2~R220~ACOH~AN", "mol/L")]})
     text = p.read_text()
     p.write_text("Exported by the Calder Bank historian\nsite: CB2\n" + text)
     got = _read(tmp_path, {"kind": "csv", "path": "w.csv", "skip_rows": 2, "units_row": True})
@@ -142,7 +142,7 @@ def test_sqlite_binary_path_reads_plain_ranges_and_hands_odd_ones_on(tmp_path, m
     df = readings(hours=6, seed=2)
     write_sqlite(df, tmp_path / "h.sqlite")
     con = sqlite3.connect(tmp_path / "h.sqlite")
-    con.execute("INSERT INTO readings VALUES ('2026-09-01T05:59:30Z', 'CB2:R220_TEMP.F', 'abc', 'OK')")
+    con.execute("INSERT INTO readings VALUES ('2026-09-01T05:59:30Z', 'CB2~R220~TEMP~F', 'abc', 'OK')")
     con.commit()
     con.close()
     cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"], "chunk_rows": 1000}, grid="10 min")
@@ -153,7 +153,7 @@ def test_sqlite_binary_path_reads_plain_ranges_and_hands_odd_ones_on(tmp_path, m
         sqlite_mode(old)
     taken = [ok for _, ok in sorted(taken)]
     assert len(taken) >= 2 and all(taken[:-1]) and not taken[-1]   # the text is in the last range
-    assert got.quality.loc["CB2:R220_TEMP.F", "bad_value"] == 1
+    assert got.quality.loc["CB2~R220~TEMP~F", "bad_value"] == 1
     assert got.source_report["rows"] == len(df) + 1
     assert sql_source.USE_SQLITE_ARROW
 
@@ -199,12 +199,12 @@ def test_sqlite_odd_values_and_texts(tmp_path):
     write_sqlite(df, tmp_path / "h.sqlite")
     con = sqlite3.connect(tmp_path / "h.sqlite")
     con.executemany("INSERT INTO readings VALUES (?,?,?,?)", [
-        ("2026-09-01T00:00:30Z", "CB2:R220_TEMP.F", "abc", "OK"),
-        ("2026-09-01T00:01:30Z", "CB2:R220_TEMP.F", None, 'BAD,"x"'),
-        ("2026-09-01T00:02:30Z", "CB2:R220_TEMP.F", 151.0, None),
-        (None, "CB2:R220_TEMP.F", 150.0, "OK"),
-        ("2026-09-01T00:03:30Z", "CB2:R220_TEMP.F", 1e308, "OK"),
-        ("2026-09-01T00:04:30Z", "CB2:R220_TEMP.F", 3, "OK")])
+        ("2026-09-01T00:00:30Z", "CB2~R220~TEMP~F", "abc", "OK"),
+        ("2026-09-01T00:01:30Z", "CB2~R220~TEMP~F", None, 'BAD,"x"'),
+        ("2026-09-01T00:02:30Z", "CB2~R220~TEMP~F", 151.0, None),
+        (None, "CB2~R220~TEMP~F", 150.0, "OK"),
+        ("2026-09-01T00:03:30Z", "CB2~R220~TEMP~F", 1e308, "OK"),
+        ("2026-09-01T00:04:30Z", "CB2~R220~TEMP~F", 3, "OK")])
     con.commit()
     con.close()
     cfg = config({"kind": "sqlite", "path": "h.sqlite", "good_quality": ["OK"]}, grid="10 min")
@@ -219,7 +219,7 @@ def test_sqlite_odd_values_and_texts(tmp_path):
     for x in out[1:]:
         pd.testing.assert_frame_equal(out[0].quality, x.quality)
         pd.testing.assert_frame_equal(out[0].values, x.values)
-    q = a.quality.loc["CB2:R220_TEMP.F"]
+    q = a.quality.loc["CB2~R220~TEMP~F"]
     # abc; BAD and a missing code; no time; 1e308 and 3 degF outside [32, 300]
     assert (q["bad_value"], q["bad_quality_code"], q["bad_timestamp"], q["out_of_range"]) == (1, 2, 1, 2)
     assert q["good"] == 60

@@ -62,8 +62,8 @@ def test_fates_match_the_simulators_record(hist, ref):
     _, _, facts = hist
     q = pd.concat([ref[u].quality for u in UNITS])
     assert int(q["rows_read"].sum()) == facts["rows"]                 # every row of the export is accounted for
-    # not "OK" -> refused for its quality code (BAD rows and SUSPECT validation runs)
-    assert int(q["bad_quality_code"].sum()) == facts["rows_by_quality"]["BAD"] + facts["rows_by_quality"]["SUSPECT"]
+    # not "OK" -> refused for its quality code (BAD rows and QUERIED validation runs)
+    assert int(q["bad_quality_code"].sum()) == facts["rows_by_quality"]["BAD"] + facts["rows_by_quality"]["QUERIED"]
     frozen = [f for f in facts["faults"] if f["kind"] == "frozen"]
     assert frozen, "the scenario's frozen transmitter should be inside the simulated days"
     for f in frozen:

@@ -84,7 +84,7 @@ def test_undecided_batches_are_held_until_a_later_file_decides(tmp_path):
     nothing of the first file is lost or misplaced (common practice, no source: day-first exports)."""
     folder = tmp_path / "exports"
     folder.mkdir()
-    tags = ["CB2:R220_FEED.GPM", "CB2:R220_PROD.GPM", "CB2:R220_TEMP.F", "CB2:R220_AA.AN", "CB2:R220_ACOH.AN"]
+    tags = ["CB2~R220~FEED~GPM", "CB2~R220~PROD~GPM", "CB2~R220~TEMP~F", "CB2~R220~AA~AN", "CB2~R220~ACOH~AN"]
     for day in (1, 13):
         lines = ["timestamp," + ",".join(tags)]
         for h in range(24):
@@ -92,7 +92,7 @@ def test_undecided_batches_are_held_until_a_later_file_decides(tmp_path):
         (folder / f"day_{day:02d}.csv").write_text("\n".join(lines) + "\n")
     cfg = config({"kind": "csv", "path": str(folder), "timezone": "UTC"}, grid="1 h")
     data = read_unit(cfg, "R-220", config_path=tmp_path / "p.toml")
-    q = data.quality.loc["CB2:R220_FEED.GPM"]
+    q = data.quality.loc["CB2~R220~FEED~GPM"]
     assert (q["rows_read"], q["good"], q["bad_timestamp"]) == (48, 48, 0)
     assert data.values.index[0] == pd.Timestamp("2026-09-01T00:00Z")
     assert data.values.index[-1] == pd.Timestamp("2026-09-13T23:00Z")

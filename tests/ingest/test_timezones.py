@@ -100,18 +100,18 @@ def test_repeated_hour_out_of_order_rows_are_placed_by_file_order(tmp_path):
     walls = ["2026-11-01T00:40:00", "2026-11-01T01:00:00", "2026-11-01T01:20:00", "2026-11-01T01:40:00",
              "2026-11-01T01:00:00", "2026-11-01T01:20:00", "2026-11-01T02:00:00"]
     expect = [_utc_ns(w, "America/Chicago", f) for w, f in zip(walls, [0, 0, 0, 0, 1, 1, 0])]
-    lines = ["timestamp,tag,value"] + [f"{w},CB2:R220_TEMP.F,{150 + k}" for k, w in enumerate(walls)]
+    lines = ["timestamp,tag,value"] + [f"{w},CB2~R220~TEMP~F,{150 + k}" for k, w in enumerate(walls)]
     for tag in R220:
-        if tag != "CB2:R220_TEMP.F":
+        if tag != "CB2~R220~TEMP~F":
             lines += [f"{w},{tag},{R220[tag][0]}" for w in walls]
     (tmp_path / "x.csv").write_text("\n".join(lines) + "\n")
     d = read_unit(config({"kind": "csv", "path": "x.csv", "timezone": "America/Chicago"}, grid="20 min"), "R-220",
                   config_path=tmp_path / "p.toml")
-    assert d.quality.loc["CB2:R220_TEMP.F", "good"] == 7
+    assert d.quality.loc["CB2~R220~TEMP~F", "good"] == 7
     # the 20-min grid of UTC intervals holds the readings in true time order: value k at expect[k]
     idx = d.values.index.asi8
     first_interval = np.searchsorted(idx, np.array(expect), side="right") - 1
     assert np.all(np.diff(first_interval) > 0)           # placed in true time order
     # each reading sits at the start of its 20-min interval, so that interval's average is the reading
-    got = d.values["CB2:R220_TEMP.F"].to_numpy()[first_interval]
+    got = d.values["CB2~R220~TEMP~F"].to_numpy()[first_interval]
     np.testing.assert_allclose(got, (150 + np.arange(7) - 32) / 1.8 + 273.15, rtol=1e-12)

@@ -54,8 +54,8 @@ def test_mass_flow_and_mass_fraction_tags_end_to_end(tmp_path):
     rows = []
     for k in range(120):
         t = (T0 + pd.Timedelta(minutes=k)).strftime("%Y-%m-%dT%H:%M:%SZ")
-        rows += [(t, "CB2:R220_FEED.GPM", 5000.0), (t, "CB2:R220_PROD.GPM", 20.0), (t, "CB2:R220_TEMP.F", 150.0),
-                 (t, "CB2:R220_AA.AN", 6.0), (t, "CB2:R220_ACOH.AN", 1.8)]
+        rows += [(t, "CB2~R220~FEED~GPM", 5000.0), (t, "CB2~R220~PROD~GPM", 20.0), (t, "CB2~R220~TEMP~F", 150.0),
+                 (t, "CB2~R220~AA~AN", 6.0), (t, "CB2~R220~ACOH~AN", 1.8)]
     (tmp_path / "x.csv").write_text("timestamp,tag,value\n" + "\n".join(f"{t},{g},{v}" for t, g, v in rows) + "\n")
 
     def tweak(raw):
@@ -69,9 +69,9 @@ def test_mass_flow_and_mass_fraction_tags_end_to_end(tmp_path):
     d = read_unit(config({"kind": "csv", "path": "x.csv"}, grid="1 h", tweak=tweak), "R-220",
                   config_path=tmp_path / "p.toml")
     # 5000 lb/h * 0.45359237 kg/lb (NIST SP 811) / 3600 s/h / 1050 kg/m3
-    assert d.values["CB2:R220_FEED.GPM"].iloc[0] == pytest.approx(5000 * 0.45359237 / 3600 / 1050, rel=1e-12)
+    assert d.values["CB2~R220~FEED~GPM"].iloc[0] == pytest.approx(5000 * 0.45359237 / 3600 / 1050, rel=1e-12)
     # 6 wt% acetic anhydride: 0.06 * 1050 kg/m3 / 0.10209 kg/mol (C4H6O3 from standard atomic weights)
-    assert d.values["CB2:R220_AA.AN"].iloc[0] == pytest.approx(0.06 * 1050 / 0.10209, rel=2e-4)
+    assert d.values["CB2~R220~AA~AN"].iloc[0] == pytest.approx(0.06 * 1050 / 0.10209, rel=2e-4)
 
 
 def test_check_unit_data_rejects_a_broken_frame(tmp_path):
@@ -101,5 +101,5 @@ def test_quality_text_shows_where_readings_went(tmp_path):
     cfg = config({"kind": "csv", "path": str(data_dir / "out_of_range.csv"), "good_quality": ["OK"]}, grid="10 min")
     d = read_unit(cfg, "R-220", config_path=tmp_path / "p.toml")
     text = quality_text(d)
-    line = next(x for x in text.splitlines() if "CB2:R220_TEMP.F" in x)
+    line = next(x for x in text.splitlines() if "CB2~R220~TEMP~F" in x)
     assert "13 read, 12 good, 1 out_of_range" in line and "1 flagged" in line

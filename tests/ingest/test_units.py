@@ -135,7 +135,7 @@ def test_a_bad_unit_is_a_config_error_naming_the_tag():
     with pytest.raises(ConfigError) as info:
         config({"kind": "csv", "path": "x.csv"}, tweak=tweak)
     p = [p for p in info.value.problems if p.where == "units[1].tags[2].unit"]
-    assert p and "'CB2:R220_TEMP.F'" in p[0].message
+    assert p and "'CB2~R220~TEMP~F'" in p[0].message
 
 
 def test_unit_scales_collects_every_bad_tag():
@@ -147,7 +147,7 @@ def test_unit_scales_collects_every_bad_tag():
         unit_scales(bad, {"AA": 0.102}, where="units[1]", source="plant.toml")
     where = [p.where for p in info.value.problems]
     assert where == ["units[1].tags[0].unit", "units[1].tags[1].unit"]
-    assert "'CB2:R220_FEED.GPM'" in info.value.problems[0].message
+    assert "'CB2~R220~FEED~GPM'" in info.value.problems[0].message
 
 
 def test_psi_against_nist_sp811():

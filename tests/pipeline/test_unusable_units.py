@@ -53,10 +53,10 @@ def test_verdicts_name_the_missing_quantity_and_its_tags(models):
     r[["feed_flow", "outlet_flow"]] = np.nan
     v = unit_verdict(r, m)
     assert v.status == "no usable data"
-    assert "CB2:R220_FEED.GPM" in v.reason and "CB2:R220_PROD.GPM" in v.reason
+    assert "CB2~R220~FEED~GPM" in v.reason and "CB2~R220~PROD~GPM" in v.reason
     r = _roles(m)
     r["temperature"] = np.nan
-    assert "CB2:R220_TEMP.F" in unit_verdict(r, m).reason
+    assert "CB2~R220~TEMP~F" in unit_verdict(r, m).reason
     r = _roles(m)
     r[f"outlet_conc:{m.key_reactant}"] = np.nan
     assert unit_verdict(r, m).status == "no usable data"
@@ -76,7 +76,7 @@ def test_feed_off_throughout_is_down_and_partly_off_is_not(models):
     r = _roles(m)
     r[["feed_flow", "outlet_flow"]] = 0.0
     v = unit_verdict(r, m)
-    assert v.status == "down" and "CB2:R220_FEED.GPM" in v.reason
+    assert v.status == "down" and "CB2~R220~FEED~GPM" in v.reason
     r = _roles(m)
     r.iloc[:24, r.columns.get_loc("feed_flow")] = 0.0   # a shutdown inside the period: counted by the check
     assert unit_verdict(r, m) is None
@@ -109,7 +109,7 @@ def _check(cfg: Path) -> subprocess.CompletedProcess:
                           capture_output=True, text=True, env=env, timeout=600)
 
 
-R220_FLOWS = "tag IN ('CB2:R220_FEED.GPM', 'CB2:R220_PROD.GPM')"
+R220_FLOWS = "tag IN ('CB2~R220~FEED~GPM', 'CB2~R220~PROD~GPM')"
 
 
 def test_unusable_flows_give_no_usable_data_and_the_other_unit_is_checked(historian, tmp_path):
@@ -122,15 +122,15 @@ def test_unusable_flows_give_no_usable_data_and_the_other_unit_is_checked(histor
     assert p.returncode == 1, p.stderr[-3000:]
     assert "Traceback" not in p.stdout + p.stderr
     assert "R-220: no usable data" in p.stdout
-    assert "CB2:R220_FEED.GPM" in p.stdout
+    assert "CB2~R220~FEED~GPM" in p.stdout
     summary = pd.read_csv(tmp_path / "plant-out" / "summary.csv").set_index("unit")
     assert summary.loc["R-220", "status"] == "no usable data"
     # no rates and no reconciled production made up for R-220
     assert np.isnan(summary.loc["R-220", ["production_kg_h", "conversion", "k_ref", "activity"]].astype(float)).all()
     # the bad readings are counted, not dropped
     q = pd.read_csv(tmp_path / "plant-out" / "R-220_quality.csv", index_col=0)
-    assert q.loc["CB2:R220_FEED.GPM", "good"] == 0 and q.loc["CB2:R220_FEED.GPM", "rows_read"] > 0
-    assert q.loc["CB2:R220_FEED.GPM", ["bad_value", "out_of_range"]].sum() > 0
+    assert q.loc["CB2~R220~FEED~GPM", "good"] == 0 and q.loc["CB2~R220~FEED~GPM", "rows_read"] > 0
+    assert q.loc["CB2~R220~FEED~GPM", ["bad_value", "out_of_range"]].sum() > 0
     # R-210 is checked as usual
     assert summary.loc["R-210", "status"] in ("on target", "below target")
     assert summary.loc["R-210", "k_ref"] > 0 and summary.loc["R-210", "steady_hours"] > 0

@@ -17,7 +17,7 @@ from kinetrace.pipeline.roles import role_frame
 from kinetrace.reconcile import reconcile_cstr
 
 DEMO = Path(__file__).resolve().parents[2] / "config" / "demo_plant.toml"
-FEED, PROD, AA, ACOH = "CB2:R220_FEED.GPM", "CB2:R220_PROD.GPM", "CB2:R220_AA.AN", "CB2:R220_ACOH.AN"
+FEED, PROD, AA, ACOH = "CB2~R220~FEED~GPM", "CB2~R220~PROD~GPM", "CB2~R220~AA~AN", "CB2~R220~ACOH~AN"
 
 
 @pytest.fixture()
@@ -28,7 +28,7 @@ def raw():
 def test_pairs_and_matrix_reach_the_unit_model(raw):
     raw["units"][1]["correlations"] = [
         {"tags": [FEED, PROD], "coefficient": 0.3},
-        {"tags": [AA, ACOH, "CB2:R220_FEED.GPM"], "matrix": [[1.0, 0.5, 0.0], [0.5, 1.0, 0.0], [0.0, 0.0, 1.0]]},
+        {"tags": [AA, ACOH, "CB2~R220~FEED~GPM"], "matrix": [[1.0, 0.5, 0.0], [0.5, 1.0, 0.0], [0.0, 0.0, 1.0]]},
     ]
     model = unit_model(validate_config(raw).units[1])
     assert set(model.correlations) == {(FEED, PROD, 0.3), (AA, ACOH, 0.5)}
@@ -86,7 +86,7 @@ def test_reconcile_unit_uses_the_configured_correlation(raw):
     xi = 0.4 * q * c_in[model.index("AA")]
     c_out = c_in + model.nu[:, 0] * xi / q
     vals = {FEED: q * (1 + 0.01 * rng.standard_normal(T)), PROD: q * (1 + 0.01 * rng.standard_normal(T)),
-            "CB2:R220_TEMP.F": np.full(T, 333.15),
+            "CB2~R220~TEMP~F": np.full(T, 333.15),
             AA: c_out[model.index("AA")] * (1 + 0.02 * rng.standard_normal(T)),
             ACOH: c_out[model.index("AcOH")] * (1 + 0.02 * rng.standard_normal(T))}
     values = pd.DataFrame(vals, index=idx)

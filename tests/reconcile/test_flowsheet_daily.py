@@ -17,7 +17,7 @@ from kinetrace.pipeline.roles import role_frame
 from .network_cases import simulate_network
 
 DEMO = Path(__file__).resolve().parents[2] / "config" / "demo_plant.toml"
-FEED, PROD, AA, ACOH = "CB2:R220_FEED.GPM", "CB2:R220_PROD.GPM", "CB2:R220_AA.AN", "CB2:R220_ACOH.AN"
+FEED, PROD, AA, ACOH = "CB2~R220~FEED~GPM", "CB2~R220~PROD~GPM", "CB2~R220~AA~AN", "CB2~R220~ACOH~AN"
 # invented meters of the loop around R-220: fresh feed, separator product and recycle
 EXTRA = [("F220-FT-300", "stream_flow", None), ("S220-FT-301", "stream_flow", None),
          ("S220-FT-302", "stream_flow", None), ("S220-AT-301", "stream_conc", "AA"),
@@ -72,7 +72,7 @@ def simulated_readings(model, T, rng, bias):
     idx = pd.date_range("2026-02-01", periods=T, freq="h", tz="UTC")
     vals = {tg: v * (1 + 0.01 * rng.standard_normal(T)) for tg, v in col.items()}
     vals[PROD] = vals[PROD] + bias * col[PROD]
-    vals["CB2:R220_TEMP.F"] = np.full(T, 333.15)
+    vals["CB2~R220~TEMP~F"] = np.full(T, 333.15)
     return pd.DataFrame(vals, index=idx)
 
 
@@ -103,7 +103,7 @@ def test_no_flowsheet_no_columns(raw):
 def test_bad_flowsheets_reported_with_key_paths(raw):
     bad = loop_config(copy.deepcopy(raw))
     fs = bad["units"][1]["flowsheet"]
-    fs["streams"][2]["flow_tag"] = "CB2:R220_TEMP.F"                 # a temperature tag
+    fs["streams"][2]["flow_tag"] = "CB2~R220~TEMP~F"                 # a temperature tag
     fs["streams"][3]["conc_tags"]["XX"] = "S220-AT-301"              # undeclared species
     bad["units"][1]["tags"][-1].pop("sigma")                         # a meter without sigma
     bad["units"][1]["tags"].append({"tag": "S220-FT-399", "role": "stream_flow", "unit": "m3/s", "sigma": "1 %"})

@@ -50,7 +50,7 @@ def tag_rows(csv, tag):
 def test_csv_schema(csv, models):
     assert list(csv.columns) == ["timestamp", "tag", "value", "quality"]
     assert csv["timestamp"].map(lambda s: bool(STAMP.match(s))).all()
-    assert set(csv["quality"]) == {"OK", "SUSPECT", "BAD"}
+    assert set(csv["quality"]) == {"OK", "QUERIED", "BAD"}
     assert set(csv["tag"]) == {t.tag for m in models.values() for t in m.tags}
     assert not csv.loc[csv["quality"] != "BAD", "value"].isna().any()     # empty values only on BAD rows
     assert csv.loc[csv["quality"] == "BAD", "value"].isna().any()
@@ -114,8 +114,8 @@ def excluded(d, facts, tag):
 
 @pytest.mark.parametrize("unit_id,tag", [("R-210", "R210-FT-101"), ("R-210", "R210-FT-102"),
                                          ("R-210", "R210-TT-103"), ("R-210", "R210-LT-107"),
-                                         ("R-210", "R210-AT-104"), ("R-220", "CB2:R220_TEMP.F"),
-                                         ("R-220", "CB2:R220_FEED.GPM"), ("R-220", "CB2:R220_ACOH.AN")])
+                                         ("R-210", "R210-AT-104"), ("R-220", "CB2~R220~TEMP~F"),
+                                         ("R-220", "CB2~R220~FEED~GPM"), ("R-220", "CB2~R220~ACOH~AN")])
 def test_noise_std_matches_config_sigma(csv, truth, facts, models, unit_id, tag):
     m = models[unit_id]
     cfg = next(t for t in m.tags if t.tag == tag)
@@ -175,7 +175,7 @@ def test_faults_as_recorded(csv, facts, truth):
         assert len(win) == f["rows"] > 0 and (win["quality"] == "BAD").all() and win["value"].isna().all()
     for f in by_kind["validation"]:
         d = tag_rows(csv, f["tag"])
-        sus = d[d["quality"] == "SUSPECT"]
+        sus = d[d["quality"] == "QUERIED"]
         assert len(sus) == f["rows"] == 3 * 20                              # 20 min a day for 3 days
         assert sus["value"].mean() == pytest.approx(f["check_standard"], rel=0.02)
     # scattered BAD rows: counts consistent with the binomial fraction of 0.1 %

@@ -7,7 +7,7 @@ Kinds (``[faults.<kind>]`` in the scenario file):
 ``validation``
     An analyzer runs its check standard every ``every`` for ``duration``: the value is
     the standard's (``sensors.check_standard``, plus the tag's noise) and quality is
-    ``SUSPECT`` (uncertain).
+    ``QUERIED`` (doubtful).
 ``bad_stretch``
     Rows kept with quality ``BAD`` and an empty value.
 ``dropout``
@@ -25,7 +25,7 @@ from __future__ import annotations
 import numpy as np
 
 from .plant import rng_for
-from .sensors import BAD, GOOD, SUSPECT, Readings
+from .sensors import BAD, GOOD, QUERIED, Readings
 
 
 def _window_mask(r: Readings, step: float, start: float, duration: float, every: float = 0.0) -> np.ndarray:
@@ -88,7 +88,7 @@ def apply_faults(readings: dict[str, Readings], scenario, check_noise: dict[str,
                 std = scenario.check_standard[tag]
                 rng = rng_for(scenario.seed, "check", tag)
                 r.value[m] = std * (1.0 + check_noise.get(tag, 0.0) * rng.standard_normal(int(m.sum())))
-                r.quality[m] = SUSPECT
+                r.quality[m] = QUERIED
                 log.append({"kind": "validation", "check_standard": std, **_span(r, m, step, f)})
             elif f.kind == "bad_stretch":
                 r.value[m] = np.nan

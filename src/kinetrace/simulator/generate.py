@@ -260,7 +260,7 @@ def generate_sample_historian(config_path, out_dir, *, scenario_path=None, scena
     facts = {
         "scenario": Path(sc.source).name, "config": Path(config_path).name, "seed": sc.seed,
         "start": _iso(sc.start, 0.0), "end": _iso(sc.start, duration), "days": sc.days, "step_s": sc.step,
-        "quality_codes": {"OK": "good", "SUSPECT": "uncertain: analyzer validation run on its check standard",
+        "quality_codes": {"OK": "good", "QUERIED": "doubtful: analyzer validation run on its check standard",
                           "BAD": "bad; value empty or garbage"},
         "rows": int(len(frame)),
         "rows_by_quality": {q: int(n) for q, n in frame["quality"].value_counts().sort_index().items()},

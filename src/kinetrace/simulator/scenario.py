@@ -18,8 +18,8 @@ from pathlib import Path
 from ..errors import ConfigError, KinetraceError, Problem, ProblemList
 from ..units import UnitError, parse_quantity, parse_rate_constant
 
-#: Quality codes written by the simulator: good, uncertain (analyzer validation run), bad.
-QUALITY_CODES = {"good": "OK", "suspect": "SUSPECT", "bad": "BAD"}
+#: Quality codes written by the simulator: good, doubtful (analyzer validation run), bad.
+QUALITY_CODES = {"good": "OK", "doubtful": "QUERIED", "bad": "BAD"}
 
 
 @dataclass(frozen=True)

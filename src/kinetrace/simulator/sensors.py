@@ -33,8 +33,8 @@ from ..units import from_si, parse_quantity
 from .plant import rng_for
 
 #: Quality codes as small integers inside the simulator; names in :data:`QUALITY_NAMES`.
-GOOD, SUSPECT, BAD = 0, 1, 2
-QUALITY_NAMES = ("OK", "SUSPECT", "BAD")
+GOOD, QUERIED, BAD = 0, 1, 2
+QUALITY_NAMES = ("OK", "QUERIED", "BAD")
 
 
 @dataclass
@@ -44,7 +44,7 @@ class Readings:
     tag: str
     index: np.ndarray      # int64, row time = start + index * step
     value: np.ndarray      # float64 [tag unit]; NaN is an empty value
-    quality: np.ndarray    # int8, GOOD / SUSPECT / BAD
+    quality: np.ndarray    # int8, GOOD / QUERIED / BAD
 
 
 def sensor_sigma(tag, kind: str) -> tuple[float, float]:

@@ -8,7 +8,7 @@ column      type   meaning
 timestamp   TEXT   ISO 8601 UTC with ``Z``, e.g. ``2026-09-01T06:00:00Z``
 tag         TEXT   tag name of the plant configuration
 value       REAL   reading in the tag's engineering unit; empty/NULL allowed on a BAD row
-quality     TEXT   ``OK`` good, ``SUSPECT`` uncertain, ``BAD`` bad
+quality     TEXT   ``OK`` good, ``QUERIED`` doubtful, ``BAD`` bad
 =========== ====== ===========================================================
 
 Values are rounded to ``significant_digits`` (default 7) once, so that the CSV and
