@@ -69,12 +69,21 @@ def _open(path: Path, source: Source):
     return open(path, "rb")
 
 
-def _split(line: bytes, delimiter: str, where: str) -> list[str]:
+def _split(line: bytes, delimiter: str, where: str, line_no: int) -> list[str]:
+    """The fields of one header or units line (``line_no`` counted from 1, for messages)."""
+    at = f"{where}:{line_no}"
     try:
         text = line.decode("utf-8-sig").rstrip("\r\n")
-    except UnicodeDecodeError:
-        raise IngestError(where, [Problem(where, "line is not UTF-8 text")]) from None
-    return next(csv.reader([text], delimiter=delimiter), [])
+    except UnicodeDecodeError as exc:
+        raise IngestError(where, [Problem(at, f"line is not UTF-8 text (byte 0x{line[exc.start]:02x}); "
+                                          "export the file as UTF-8")]) from None
+    if "\r" in text:
+        raise IngestError(where, [Problem(at, "the line ends are bare carriage returns (CR, no LF): save the "
+                                          "export with LF or CR LF line ends")])
+    try:
+        return next(csv.reader([text], delimiter=delimiter), [])
+    except csv.Error as exc:
+        raise IngestError(where, [Problem(at, f"cannot split the line into fields: {exc}")]) from None
 
 
 def _delimiter_hint(cols: list[str], source: Source) -> str:
@@ -251,21 +260,23 @@ def _read_open(f, name, source, collector, tags, block_bytes, counts) -> dict:
     for _ in range(source.skip_rows):
         read_line(f, limit)
     header_line, too_long = read_line(f, limit)
+    if too_long and header_line:
+        _split(header_line, source.delimiter, name, source.skip_rows + 1)   # names bare-CR line ends
     if too_long:
         raise IngestError(name, [Problem(f"{name}:{source.skip_rows + 1}", (
             f"header line is longer than source.max_line_bytes ({limit} bytes): not a CSV export with a "
             "header line (check source.path, source.skip_rows), or raise the limit"))])
     if not header_line.strip():
         raise IngestError(name, [Problem(f"{name}:{source.skip_rows + 1}", "file is empty (no header line)")])
-    header = [h.strip() for h in _split(header_line, source.delimiter, name)]
+    header = [h.strip() for h in _split(header_line, source.delimiter, name, source.skip_rows + 1)]
     layout = detect_layout(header, source, name)
     line_no = source.skip_rows + 1
     for _ in range(source.description_rows):
         read_line(f, limit)
         line_no += 1
     if source.units_row:
-        units = _split(read_line(f, limit)[0], source.delimiter, name)
         line_no += 1
+        units = _split(read_line(f, limit)[0], source.delimiter, name, line_no)
         _check_units(header, units, tags, name)
     counts["header_lines"] = line_no
     c = source.columns
