@@ -116,13 +116,14 @@ def read_line(f, max_bytes: int) -> tuple[bytes, bool]:
     -------
     (bytes, bool)
         The line (with its line break, if any) and False; or ``b""`` and True when the
-        line was longer (it has been skipped, never held whole).
+        line was longer (it has been skipped, never held whole; if its first 4 KiB hold a
+        carriage return, those 4 KiB instead of ``b""``, so the caller can name bare-CR line ends).
     """
     piece = f.readline(max_bytes + 1)
     if piece.endswith(b"\n") or len(piece) <= max_bytes:
         return piece, False
     drain_line(f)
-    return b"", True
+    return piece[:4096] if b"\r" in piece[:4096] else b"", True
 
 
 def complete_block(f, buf: bytes, max_bytes: int) -> bytes:

@@ -257,8 +257,15 @@ def reconcile_unit(roles: pd.DataFrame, model: UnitModel, *, derivative_window: 
         # dV/dt from a smoothed level: its sigma ~ sigma_V * sqrt(12 / (w (w^2 - 1))) / dt for a
         # least-squares slope over w points (Draper & Smith 1998, slope variance)
         w = derivative_window
-        vspan = (model.level_table[-1, 1] - model.level_table[0, 1]) if model.level_table is not None else 1.0
-        sigma_dvdt = np.nan_to_num(sig_level * vspan * np.sqrt(12.0 / (w * (w * w - 1))) / dt, nan=1e-6)
+        # sigma_V: the level's sigma [SI level unit] times the table's mean slope [m3 per SI level unit]
+        # (the volume span for a table over 0-100 %), or a volume transmitter's own sigma [m3]
+        tab = model.level_table
+        lspan = float(tab[-1, 0] - tab[0, 0]) if tab is not None and len(tab) > 1 else 0.0
+        if lspan <= 0 and "sigma:volume" in roles:
+            sig_v = roles["sigma:volume"].to_numpy(dtype=float)
+        else:
+            sig_v = sig_level * ((tab[-1, 1] - tab[0, 1]) / lspan if lspan > 0 else 1.0)
+        sigma_dvdt = np.nan_to_num(sig_v * np.sqrt(12.0 / (w * (w * w - 1))) / dt, nan=1e-6)
     else:
         sigma_dvdt = 0.0
     kwargs = dict(

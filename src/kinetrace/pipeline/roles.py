@@ -47,16 +47,31 @@ def role_column(role: str, species: str | None) -> str:
     return role if species is None else f"{role}:{species}"
 
 
-def _tag_sigma_array(tag, values: np.ndarray) -> np.ndarray:
+def _tag_sigma_array(tag, values: np.ndarray, level_span: float | None = None) -> np.ndarray:
+    """Standard uncertainty of each reading of a tag, in the SI unit of its values.
+
+    A level's ``"x %"`` is x % of span (common practice, no source: level transmitters are
+    specified in % of calibrated span): for a level in % that is an absolute x/100 of the
+    fraction; for a level in a length unit, x/100 of ``level_span`` (the level range of the
+    unit's volume table [m]), or x % of reading where there is no table. An absolute level
+    sigma is in the tag's kind: a length (``"5 mm"``) for a length unit, a fraction for %.
+    """
     if tag.sigma is None:
         # a tag without a stated uncertainty gets 1 % of reading, so that it can still be combined
         # (common practice, no source: a typical process-instrument uncertainty)
         return np.maximum(0.01 * np.abs(values), 1e-12)
     kind = ROLE_KIND[tag.role]
-    if kind == "level" and tag.sigma.strip().endswith("%"):
-        # a level's "0.5 %" is 0.5 % of span, i.e. an absolute 0.005 of the fraction
-        return np.full(values.shape, float(tag.sigma.strip()[:-1]) / 100.0)
-    rel, absolute = tag_sigma(tag, kind if kind != "level" else "dimensionless")
+    if kind == "level":
+        percent_level = tag.unit.strip() in ("%", "percent")
+        if tag.sigma.strip().endswith("%"):
+            x = float(tag.sigma.strip()[:-1]) / 100.0
+            if percent_level:
+                return np.full(values.shape, x)        # "0.5 %" of span: an absolute 0.005 of the fraction
+            if level_span is not None and level_span > 0:
+                return np.full(values.shape, x * level_span)
+            return x * np.abs(values)
+        kind = "dimensionless" if percent_level else "length"
+    rel, absolute = tag_sigma(tag, kind)
     return rel * np.abs(values) + absolute
 
 
@@ -76,14 +91,15 @@ def _run_lengths(v: np.ndarray) -> np.ndarray:
     return np.repeat(lengths, lengths)
 
 
-def _combine(tags, values: pd.DataFrame, valid: pd.DataFrame) -> tuple[np.ndarray, np.ndarray]:
+def _combine(tags, values: pd.DataFrame, valid: pd.DataFrame, level_span: float | None = None
+             ) -> tuple[np.ndarray, np.ndarray]:
     """Inverse-variance weighted mean of the valid readings of several tags, and its sigma."""
     num = np.zeros(len(values))
     den = np.zeros(len(values))
     for tag in tags:
         v = values[tag.tag].to_numpy(dtype=float)
         ok = valid[tag.tag].to_numpy(dtype=bool) & np.isfinite(v)
-        s = _tag_sigma_array(tag, v)
+        s = _tag_sigma_array(tag, v, level_span)
         if tag.sampling == "lab":
             s = s * np.sqrt(_run_lengths(v))
         # a relative uncertainty of a zero reading (a stopped flow) is not zero: floor it at a
@@ -118,6 +134,8 @@ def role_frame(values: pd.DataFrame, valid: pd.DataFrame, volume: pd.Series, mod
     """
     out: dict[str, np.ndarray] = {}
     groups: dict[str, list] = {}
+    table = model.level_table
+    level_span = float(table[-1, 0] - table[0, 0]) if table is not None and len(table) > 1 else None   # [SI]
     for tag in model.tags:
         if tag.tag in values.columns and not tag.role.startswith("stream_"):  # flowsheet meters: network_step
             groups.setdefault(role_column(tag.role, tag.species), []).append(tag)
@@ -130,7 +148,7 @@ def role_frame(values: pd.DataFrame, valid: pd.DataFrame, volume: pd.Series, mod
             ranked = [t for t in tags if (t.sampling == "lab") == bool(rank)]
             if not ranked:
                 continue
-            v_r, s_r = _combine(ranked, values, valid)
+            v_r, s_r = _combine(ranked, values, valid, level_span)
             fill = ~np.isfinite(value) & np.isfinite(v_r)
             value = np.where(fill, v_r, value)
             sigma = np.where(fill, s_r, sigma)

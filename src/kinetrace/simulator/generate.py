@@ -36,8 +36,9 @@ DEFAULT_CONFIG = Path(__file__).resolve().parents[3] / "config" / "demo_plant.to
 def check_scenario(scenario: Scenario, models, level_limits: dict | None = None) -> None:
     """Cross-check a scenario against the configured units; raise ConfigError listing every problem.
 
-    Checked: each unit has a plan, catalysed reactions, extra feed species, dead-time and fault tags
-    exist, a level-controlled unit has a controller gain, every schedule and shutdown set point lies
+    Checked: each unit has a plan and a hold-up the simulator can run (fixed or level-controlled),
+    catalysed reactions, extra feed species, dead-time and fault tags exist, a level-controlled unit
+    has a controller gain, every schedule and shutdown set point lies
     inside the unit's safe limits (feed, temperature, level), every validation tag has a
     check-standard value.
 
@@ -69,6 +70,10 @@ def check_scenario(scenario: Scenario, models, level_limits: dict | None = None)
         for t in p.dead_time:
             if tags.get(t) is not m:
                 problems.add(f"{where}.dead_time.{t}", f"tag {t!r} is not a tag of {m.id}")
+        if m.level_table is None and m.fixed_volume is None:
+            problems.add(f"{where}.id", f"{m.id} takes its volume from a volume tag only: the simulator needs a fixed "
+                         "volume or a level tag with its table to simulate the hold-up (a volume tag is then read "
+                         "from the simulated volume)")
         if m.level_table is not None and p.level_gain is None:
             problems.add(f"{where}.level_control.gain", f"{m.id} is level-controlled and needs a controller gain")
         for k, s in enumerate(p.steps):

@@ -1,7 +1,8 @@
 """Instrument readings of a simulated unit, from its ground truth, before faults.
 
 Each configured tag reads the true value of its role (feed or outlet flow,
-temperature, level, outlet or feed concentration of its species), with
+temperature, level, liquid volume (a volume transmitter), outlet or feed concentration of its
+species), with
 
 * a flowmeter bias (a relative error b(t), zero before its onset): y = x (1 + b);
 * Gaussian noise of the tag's sigma (relative to reading, or absolute), as read by
@@ -67,7 +68,7 @@ def sensor_sigma(tag, kind: str) -> tuple[float, float]:
 def true_signal(tag, truth: pd.DataFrame) -> np.ndarray:
     """The true SI value a tag measures, on the truth grid. [SI of ``ROLE_KIND[tag.role]``]"""
     role = tag.role
-    if role in ("feed_flow", "outlet_flow", "temperature", "level"):
+    if role in ("feed_flow", "outlet_flow", "temperature", "level", "volume"):   # volume: a volume transmitter
         return truth[role].to_numpy(float)
     if role == "outlet_conc":
         return truth[f"conc_{tag.species}"].to_numpy(float)
