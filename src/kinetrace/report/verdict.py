@@ -130,19 +130,24 @@ def alarm_words(row) -> str:
     ...              "magnitude_unit": "%", "onset": pd.Timestamp("2027-03-09T00:00Z"),
     ...              "last_check": pd.Timestamp("2027-03-12T12:30Z")})
     'analyzer K41-AI-P reads about +1.9 %, growing about +0.49 % a day since 9 Mar; last lab check 12 Mar'
+    >>> alarm_words({"kind": "sensor_bias", "variable": "R1-FT-1", "magnitude": 0.42, "magnitude_unit": "m3/h",
+    ...              "onset": pd.NaT})
+    'R1-FT-1 reads about +0.42 m3/h'
     """
     kind, var = str(row.get("kind", "")), str(row.get("variable", ""))
     since = "" if pd.isna(row.get("onset")) else f" since {_date(row['onset'])}"
     mag = _f(row.get("magnitude"))
+    unit = str(row.get("magnitude_unit") or "%")
+    size = f"{mag:+.1f} %" if unit == "%" else f"{mag:+.3g} {unit}"   # the pipeline says sensors in %
     checked = "" if pd.isna(row.get("last_check")) else f"; last lab check {_date(row['last_check'])}"
     if kind == "sensor_drift":
         rate = _f(row.get("rate"))
         growing = f", growing about {rate:+.2f} % a day" if math.isfinite(rate) else ", drifting"
-        return f"analyzer {var} reads about {mag:+.1f} %{growing}{since}{checked}"
+        return f"analyzer {var} reads about {size}{growing}{since}{checked}"
     if kind == "sensor_bias":
-        return f"{var} reads about {mag:+.1f} %{since}{checked}"
+        return f"{var} reads about {size}{since}{checked}"
     if kind == "balance_mismatch":
-        return f"the balances disagree with {var} by about {mag:+.1f} % (a lab result or the feed specification may explain it){since}"
+        return f"the balances disagree with {var} by about {size} (a lab result or the feed specification may explain it){since}"
     method, _, direction = kind.partition("_")
     signal = "catalyst activity" if var == "activity" else var
     if method == "step":
