@@ -118,7 +118,7 @@ def test_overview(browser_page, served, store):
     expect(metric_value(page, "R-210 produced")).to_have_text(f"{daily['production_kg'].iloc[-7:].mean() / 1000:.2f}")
     # a status mark (shape and colour) per unit, the open alarm named with how long, the run read
     expect(page.locator("svg[aria-label='on target']")).to_have_count(2)
-    expect(page.get_by_text("R210-FT-101 reads about +0.0 % since 24 Nov: open 5 d", exact=False)).to_be_visible()
+    expect(page.get_by_text("R210-FT-101 reads about +0.042 m3/h since 24 Nov: open 5 d", exact=False)).to_be_visible()
     expect(page.get_by_text("expected 8 Jan 2027 (interval 31 Dec 2026 to 17 Jan 2027)", exact=False)).to_be_visible()
     expect(page.get_by_text("Results of run 1, the last complete run", exact=False)).to_be_visible()
     assert "+00:00" not in page.locator("[data-testid=stMain]").inner_text()
