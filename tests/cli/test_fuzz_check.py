@@ -27,7 +27,7 @@ from pathlib import Path
 
 import pandas as pd
 import pytest
-from hypothesis import HealthCheck, given, settings
+from hypothesis import HealthCheck, event, given, settings
 from hypothesis import strategies as st
 from typer.testing import CliRunner
 
@@ -80,6 +80,7 @@ def _check(folder: Path, cfg: Path, caplog) -> tuple[int, str]:
     assert res.exception is None or isinstance(res.exception, SystemExit), repr(res.exception)
     assert "Traceback" not in out and "Traceback" not in logged, out + logged
     assert res.exit_code in (0, 1, 2), f"exit {res.exit_code}\n{out}\n{report}"
+    event(f"exit {res.exit_code}")      # shown by --hypothesis-show-statistics: how many cases ran through
     return res.exit_code, out
 
 
@@ -157,7 +158,7 @@ def _apply_config_edit(lines: list[str], edit) -> list[str]:
 ENCODINGS = ["utf-8", "utf-8", "utf-8", "utf-8-sig", "utf-16", "latin-1-cafe", "nul", "crlf", "cr", "truncate"]
 
 
-@_settings(24)
+@_settings(32)
 @given(edits=config_edits(), encoding=st.sampled_from(ENCODINGS), cut=st.integers(0, 10**6))
 def test_mutated_config_never_crashes(tmp_path_factory, small_historian, caplog, edits, encoding, cut):
     folder = tmp_path_factory.mktemp("fuzz-cfg")
@@ -317,7 +318,7 @@ def _historian_bytes(frame: pd.DataFrame, edits) -> bytes:
     return data
 
 
-@_settings(18)
+@_settings(24)
 @given(edits=historian_edits())
 def test_mutated_csv_historian_never_crashes(tmp_path_factory, small_historian, caplog, edits):
     folder = tmp_path_factory.mktemp("fuzz-csv")
@@ -332,7 +333,7 @@ SQL_CELLS = st.one_of(st.none(), st.floats(allow_nan=True, allow_infinity=True),
                       st.sampled_from(["OK", "BAD", "2026-09-01T00:00:00Z", "2026-09-01 00:00:00+09:00", "-0", "nan"]))
 
 
-@_settings(12)
+@_settings(16)
 @given(cells=st.lists(st.tuples(st.integers(0, 10**6), st.integers(0, 3), SQL_CELLS), max_size=6),
        columns=st.lists(st.tuples(st.just("column"), st.sampled_from(COLUMN_EDITS), st.integers(0, 20)), max_size=2),
        shape=st.sampled_from(["table", "table", "view", "no_quality", "typed", "without_rowid", "empty", "truncated",
