@@ -465,19 +465,19 @@ def _step_or_drift(res, solve, idx, names, chosen, a, b):
         return "step", float("nan"), float("nan"), None
     u = np.where(ok, (rel - base) / spread, np.nan)
     t = (idx[rows].as_unit("ns").asi8 / 1e9) / 86400.0
-    g = glr_step_ramp(u, t, window=u.size)
     n = u.size - 1
-    if not (g.ramp[n] + DRIFT_MARGIN > g.step[n]):
+    g = glr_step_ramp(u, t, window=u.size, ends=[n])   # the whole record, judged at its end
+    if not (g.ramp[0] + DRIFT_MARGIN > g.step[0]):
         return "step", float("nan"), float("nan"), None
-    m = int(g.ramp_onset[n])
+    m = int(g.ramp_onset[0])
     tau = t[m - 1] if m > 0 else t[0]
     x = (t - tau)[m:][ok[m:]]
-    resid = (u[m:][ok[m:]] - g.ramp_rate[n] * x)
+    resid = (u[m:][ok[m:]] - g.ramp_rate[0] * x)
     # hourly differences are serially correlated: the slope's standard error is widened by the
     # AR(1) effective sample size (common practice, no source)
     rho = float(np.clip(np.corrcoef(resid[:-1], resid[1:])[0, 1], 0.0, 0.95)) if resid.size > 3 else 0.0
     rate_sd = spread / np.sqrt(float((x * x).sum())) * np.sqrt((1 + rho) / (1 - rho))
-    rate = float(g.ramp_rate[n]) * spread
+    rate = float(g.ramp_rate[0]) * spread
     if abs(rate) < 3.0 * rate_sd:
         return "step", float("nan"), float("nan"), None
     return "drift", rate, float(rate_sd), lo + max(m - 1, 0)

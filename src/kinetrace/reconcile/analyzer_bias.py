@@ -303,9 +303,9 @@ def _refine_onset(t, z, sd, onset, last, window):
     of whichever of a step and a ramp explains the standardised differences better (GLR at the
     segment's last sample, onsets within ``window`` samples before the alarm's onset)."""
     lo = max(0, onset - window)
-    stat = glr_step_ramp(z[lo:last + 1] / sd[lo:last + 1], t[lo:last + 1], window=last + 1 - lo)
-    j = last - lo
-    best = stat.ramp_onset[j] if stat.ramp[j] + DRIFT_MARGIN > stat.step[j] else stat.step_onset[j]
+    stat = glr_step_ramp(z[lo:last + 1] / sd[lo:last + 1], t[lo:last + 1], window=last + 1 - lo,
+                         ends=[last - lo])
+    best = stat.ramp_onset[0] if stat.ramp[0] + DRIFT_MARGIN > stat.step[0] else stat.step_onset[0]
     return int(lo + best)
 
 

@@ -71,7 +71,7 @@ class GlrStatistic:
         return np.maximum(self.step, self.ramp)
 
 
-def glr_step_ramp(u, t, *, window: int = GLR_WINDOW, start: int = 0) -> GlrStatistic:
+def glr_step_ramp(u, t, *, window: int = GLR_WINDOW, start: int = 0, ends=None) -> GlrStatistic:
     """Window-limited GLR statistics of a step and a ramp in the mean of ``u`` (module docstring).
 
     Parameters
@@ -84,11 +84,15 @@ def glr_step_ramp(u, t, *, window: int = GLR_WINDOW, start: int = 0) -> GlrStati
         Number of onsets considered (the last ``window`` observations). [-]
     start : int
         No onset before this index (a restart after an alarm). [-]
+    ends : array_like of int, optional
+        Only these observations' statistics (default: every one). The work and memory are
+        ``len(ends) x window``: a whole-record test at its last observation asks for
+        ``ends=[n - 1], window=n`` (linear, where every end would be quadratic in n).
 
     Returns
     -------
     GlrStatistic
-        Zero statistics before ``start``.
+        One entry per end (every observation by default); zero statistics before ``start``.
 
     References
     ----------
@@ -102,6 +106,9 @@ def glr_step_ramp(u, t, *, window: int = GLR_WINDOW, start: int = 0) -> GlrStati
     >>> g = glr_step_ramp(u, t)
     >>> bool(g.ramp[-1] > g.step[-1]), round(float(g.ramp_rate[-1]), 1)
     (True, 1.0)
+    >>> last = glr_step_ramp(u, t, window=60, ends=[59])
+    >>> bool(last.ramp[0] == glr_step_ramp(u, t, window=60).ramp[59])
+    True
     """
     u = np.asarray(u, dtype=float)
     t = np.asarray(t, dtype=float)
@@ -115,7 +122,7 @@ def glr_step_ramp(u, t, *, window: int = GLR_WINDOW, start: int = 0) -> GlrStati
         return np.concatenate([[0.0], np.cumsum(x)])
 
     c_w, c_u, c_t, c_tt, c_tu = csum(w), csum(u0), csum(w * t), csum(w * t * t), csum(u0 * t)
-    end = np.arange(n)[:, None]
+    end = (np.arange(n) if ends is None else np.asarray(ends, dtype=int))[:, None]
     onset = end - np.arange(window)[None, :]
     valid = onset >= max(start, 0)
     m = np.clip(onset, 0, n - 1)
@@ -134,7 +141,7 @@ def glr_step_ramp(u, t, *, window: int = GLR_WINDOW, start: int = 0) -> GlrStati
         rate = np.where(sxx > 0, sxu / sxx, 0.0)
     i_s = np.argmax(g_step, axis=1)
     i_r = np.argmax(g_ramp, axis=1)
-    rows = np.arange(n)
+    rows = np.arange(end.shape[0])
     return GlrStatistic(g_step[rows, i_s], g_ramp[rows, i_r], onset[rows, i_s], onset[rows, i_r],
                         size[rows, i_s], rate[rows, i_r])
 
