@@ -12,7 +12,6 @@ from __future__ import annotations
 import math
 
 import altair as alt
-import numpy as np
 import pandas as pd
 
 from .ui import COLOURS
@@ -32,9 +31,9 @@ def nice_ticks(lo: float, hi: float, n: int = 5) -> list[float]:
         Ticks wanted (the result has between 2 and about n + 1). [-]
 
     >>> nice_ticks(2.9, 2.95)
-    [2.9, 2.91, 2.92, 2.93, 2.94, 2.95]
+    [2.9, 2.92, 2.94]
     >>> nice_ticks(2.9151, 2.9319)
-    [2.915, 2.92, 2.925, 2.93]
+    [2.92, 2.925, 2.93]
     """
     if not (math.isfinite(lo) and math.isfinite(hi)) or hi <= lo:
         return [lo] if math.isfinite(lo) else []
@@ -146,6 +145,3 @@ def weight_bars(table: pd.DataFrame, what: str) -> alt.Chart:
         text=alt.Text("weight:Q", format=".3f"))
     return (bars + text).properties(height=34 * len(table) + 30)
 
-
-def _finite(v) -> bool:
-    return v is not None and np.isfinite(v)
