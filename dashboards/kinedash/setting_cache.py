@@ -17,3 +17,11 @@ def unit_setting(url: str, unit: str) -> setting.UnitSetting:
 def site_settings() -> tuple[str, str]:
     """The site's time zone and production unit (:func:`kinedash.source.site_settings`)."""
     return source.site_settings()
+
+
+@st.cache_data(ttl=cached.TTL, show_spinner=False)
+def tag_info(unit: str) -> dict:
+    """:func:`kinedash.labels.tag_info` of the configured plant."""
+    from .labels import tag_info as info
+
+    return info(setting.config_path(), unit)
