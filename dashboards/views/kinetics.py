@@ -75,11 +75,11 @@ else:
                 if ea is not None and np.isfinite(ea["ci_low"]) and np.isfinite(ea["ci_high"]) else "not available")
     if ea is not None:
         st.caption(f"Ea: {status(ea['method'])}.")
-    if ea is None:
-        ui.not_available(f"Activation energy of {rxn}", "the store holds no joint fit of this reaction")
-    elif len(pts) == 0:
+    if len(pts) == 0:
         st.info(f"No steady window of {unit} in this range (or no fitted decay law to correct for activity): "
                 "the Arrhenius plot needs steady operation.", icon=":material/waves:")
+    elif ea is None:
+        ui.not_available(f"Activation energy of {rxn}", "the store holds no joint fit of this reaction")
     else:
         check = span_check(pts["inv_t"], pts["ln_k"], float(ea["value"]))
         held = str(ea["method"]).startswith("held at the configured value")
