@@ -138,7 +138,7 @@ for lever in ("temperature", "feed_flow", "residence_time"):
                     "safe range": f"{lo_s:.4g} to {hi_s:.4g} {shown}",
                     "margin to the low limit": f"{below * scale:.3g} {shown}",
                     "margin to the high limit": f"{above * scale:.3g} {shown}"})
-st.altair_chart(safe_range_scale(pd.DataFrame(rows)), key="ch_wi")
+st.altair_chart(safe_range_scale(pd.DataFrame(rows)), key="ch_wi", height=48 * len(rows) + 90)
 st.caption("Each row spans the lever's configured safe range (0 % at the low limit, 100 % at the high one); "
            "shaded ends: the last tenth before a limit. Ring: present operation; diamond: the setting tried. "
            "The residence-time range is the safe hold-up (level) range at the feed flow tried.")
