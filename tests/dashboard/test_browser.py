@@ -120,6 +120,9 @@ def test_balances(browser_page, served, store):
             click_radio(page, "last 24 h")
         gt = store.series("R-210", ["global_test"], end - pd.Timedelta(days=days), end)["global_test"].max()
         expect(metric_value(page, "Largest global-test")).to_have_text(f"{gt:.3g}")
+    # the flagged sensor's measurement is selected first, by a readable name
+    picker = page.locator("[data-testid=stMultiSelect]", has_text="Measurements")
+    expect(picker).to_contain_text("feed flow (R210-FT-101) - flagged")
     finish(page, "03_balances_and_sensors")
 
 
