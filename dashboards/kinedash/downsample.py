@@ -51,8 +51,8 @@ def list_methods() -> list[str]:
 
 
 def _as_xy(x, y) -> tuple[np.ndarray, np.ndarray]:
-    x = np.asarray(x, dtype=float)
-    y = np.asarray(y, dtype=float)
+    x = np.ascontiguousarray(x, dtype=float)          # the Rust kernels read contiguous memory only
+    y = np.ascontiguousarray(y, dtype=float)
     if x.shape != y.shape or x.ndim != 1:
         raise ValueError(f"x and y must be 1-D of equal length, got shapes {x.shape} and {y.shape}")
     return x, y

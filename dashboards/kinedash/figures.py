@@ -31,7 +31,7 @@ def nice_ticks(lo: float, hi: float, n: int = 5) -> list[float]:
         Ticks wanted (the result has between 2 and about n + 1). [-]
 
     >>> nice_ticks(2.9, 2.95)
-    [2.9, 2.92, 2.94]
+    [2.9, 2.91, 2.92, 2.93, 2.94, 2.95]
     >>> nice_ticks(2.9151, 2.9319)
     [2.92, 2.925, 2.93]
     """
@@ -39,10 +39,15 @@ def nice_ticks(lo: float, hi: float, n: int = 5) -> list[float]:
         return [lo] if math.isfinite(lo) else []
     raw = (hi - lo) / max(n - 1, 1)
     mag = 10 ** math.floor(math.log10(raw))
-    step = next(m * mag for m in (1, 2, 5, 10) if m * mag >= raw)
+
+    def count(step):
+        return math.floor(hi / step + 1e-9) - math.ceil(lo / step - 1e-9) + 1
+
+    # the round step (1, 2 or 5 x 10^k) whose tick count is closest to n; ties: the larger step
+    step = min((m * mag for m in (10, 5, 2, 1)), key=lambda st: abs(count(st) - n))
     digits = max(0, -int(math.floor(math.log10(step))) + 1)
     first = math.ceil(lo / step - 1e-9) * step
-    ticks = [round(first + i * step, digits) for i in range(int((hi - first) / step + 1e-9) + 1)]
+    ticks = [round(first + i * step, digits) for i in range(count(step))]
     return ticks if len(ticks) >= 2 else [round(lo, digits + 1), round(hi, digits + 1)]
 
 
@@ -114,7 +119,9 @@ def arrhenius_figure(points: pd.DataFrame, lines: pd.DataFrame, y_title: str) ->
               axis=alt.Axis(values=ticks, format=f".{digits}f", labelOverlap=True))
     pts = alt.Chart(points).mark_circle(size=30, opacity=0.8).encode(
         x=x, y=alt.Y("ln_k:Q", title=y_title, scale=alt.Scale(zero=False), axis=alt.Axis(tickCount=6)),
-        color=alt.Color("ts:T", title="time", scale=alt.Scale(range=["#b8d4e0", COLOURS["measured"]])),
+        color=alt.Color("ts:T", title="time", scale=alt.Scale(
+            range=["#b8d4e0", COLOURS["measured"]],
+            domain=[points["ts"].min().isoformat(), points["ts"].max().isoformat()])),
         tooltip=[alt.Tooltip("ts:T", title="bucket start", format="%Y-%m-%d %H:%M"),
                  alt.Tooltip("t_c:Q", title="T [degC]", format=".2f"), alt.Tooltip("ln_k:Q", format=".4f")])
     dash = alt.Scale(domain=list(dict.fromkeys(lines["line"])), range=[[1, 0], [5, 3], [5, 3]])

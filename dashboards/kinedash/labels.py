@@ -10,25 +10,40 @@ from pathlib import Path
 
 #: Data-quality measure -> column header. [-]
 RULES = {
-    "rows_read": "readings read",
-    "good": "good readings",
-    "bad_quality_code": "historian quality not good",
+    "rows_read": "read",
+    "good": "good",
+    "bad_quality_code": "quality not good",
     "bad_value": "not a number",
-    "bad_timestamp": "unreadable time stamp",
-    "out_of_range": "outside the valid range",
-    "frozen": "frozen (flat-lined)",
-    "spike": "spike (too fast a change)",
-    "duplicate": "repeated reading",
-    "conflicting_duplicate": "two values for one time",
-    "out_of_order": "out of time order",
-    "outside_window": "outside the run window",
-    "ambiguous_time": "ambiguous local time (clock change)",
-    "nonexistent_time": "local time that does not exist (clock change)",
-    "intervals": "grid intervals",
-    "valid_intervals": "intervals with a usable value",
-    "missing_intervals": "intervals without a value",
-    "carried_intervals": "intervals carried from an earlier sample",
-    "flagged_intervals": "intervals with a flagged value only",
+    "bad_timestamp": "bad time stamp",
+    "out_of_range": "out of range",
+    "frozen": "frozen",
+    "spike": "spike",
+    "duplicate": "repeated",
+    "conflicting_duplicate": "two values",
+    "out_of_order": "out of order",
+    "outside_window": "outside window",
+    "ambiguous_time": "ambiguous time",
+    "nonexistent_time": "nonexistent time",
+    "intervals": "intervals",
+    "valid_intervals": "with a value",
+    "missing_intervals": "without a value",
+    "carried_intervals": "carried forward",
+    "flagged_intervals": "flagged only",
+}
+#: What each header means, for the tables' help text.
+RULE_HELP = {
+    "bad_quality_code": "the historian's quality flag was not good",
+    "bad_value": "the value was not a number",
+    "out_of_range": "outside the tag's configured valid range",
+    "frozen": "flat-lined for longer than allowed",
+    "spike": "changed faster than the tag's largest credible rate",
+    "duplicate": "the same reading twice",
+    "conflicting_duplicate": "two different values at one time",
+    "ambiguous_time": "local time repeated at a clock change",
+    "nonexistent_time": "local time skipped at a clock change",
+    "missing_intervals": "grid intervals without any usable value",
+    "carried_intervals": "grid intervals filled from an earlier sample",
+    "flagged_intervals": "grid intervals whose only values were flagged",
 }
 
 #: Measured quantity (role) -> words.
@@ -41,7 +56,7 @@ def rule_label(measure: str) -> str:
     """Column header of a data-quality measure (unknown ones: underscores as spaces).
 
     >>> rule_label("bad_quality_code"), rule_label("some_new_rule")
-    ('historian quality not good', 'some new rule')
+    ('quality not good', 'some new rule')
     """
     return RULES.get(str(measure), str(measure).replace("_", " "))
 

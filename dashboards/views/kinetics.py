@@ -95,7 +95,7 @@ else:
                 t_c=lambda d: d["temperature"] - 273.15, inv_t_k=lambda d: 1000 * d["inv_t"])
             lines = fit_lines(pts["inv_t"], pts["ln_k"], float(ea["value"]), float(ea["ci_low"]),
                               float(ea["ci_high"]), label="joint fit, Ea")
-            st.altair_chart(arrhenius_figure(plot, lines, f"ln(k_apparent / a) of {rxn}"), key="ch_arrh")
+            st.altair_chart(arrhenius_figure(plot, lines, f"ln(k_apparent / a) of {rxn}"), key="ch_arrh", height=420)
             st.caption(f"Each point: one time bucket in which every result row was steady; k_apparent divided by "
                        f"the fitted catalyst decay law a(t), so decay does not pass for a temperature effect. "
                        f"Lines: slope -Ea/R of the stored joint fit and of the ends of its interval, through the "
@@ -112,7 +112,8 @@ for what, (prefix, crit) in groups.items():
     drawn += 1
     t = comparison_table(rows["name"].str.split(":", n=1).str[1].str.replace("_", " "), rows["value"])
     st.markdown(f"**{what.capitalize()}** ({crit})")
-    st.altair_chart(weight_bars(t, what), key=f"ch_w_{prefix.rstrip(':')}")
+    st.altair_chart(weight_bars(t, what), key=f"ch_w_{prefix.rstrip(':')}",
+                    height=34 * len(t) + 70)
     st.dataframe(pd.DataFrame({what: t["candidate"], f"{crit} difference to the best": t["delta"].round(1),
                                "Akaike weight": t["weight"].round(3), "support": t["support"]}),
                  hide_index=True, key=f"kin_w_{prefix.rstrip(':')}")

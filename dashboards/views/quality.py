@@ -6,7 +6,7 @@ import streamlit as st
 
 from kinedash import cached, ui
 from kinedash.display import quality_kinds
-from kinedash.labels import rule_label
+from kinedash.labels import RULE_HELP, RULES, rule_label
 from kinedash.setting_cache import tag_info
 
 st.title("Data quality")
@@ -40,10 +40,14 @@ flagged_by_tag = table[rule_cols].sum(axis=1) if rule_cols else table.iloc[:, 0]
 order = flagged_by_tag.sort_values(ascending=False, kind="stable").index        # flagged tags first
 used = [c for c in rule_cols if table[c].sum() > 0]
 shown = table.loc[order, [c for c in ("rows_read", "good") if c in table] + used]
-shown.insert(0, "readings flagged", flagged_by_tag.loc[order])
+shown.insert(0, "flagged", flagged_by_tag.loc[order])
 shown = shown.rename(columns=rule_label).rename(index=name_of)
 shown.index.name = "tag"
-st.dataframe(shown, key="dq_table", column_config={"tag": st.column_config.TextColumn(width="large")})
+helps = {RULES.get(m, m): RULE_HELP[m] for m in RULE_HELP}
+st.dataframe(shown, key="dq_table", column_config={
+    "tag": st.column_config.TextColumn(width="large"),
+    **{c: st.column_config.NumberColumn(c, help=helps.get(c), width="small") for c in shown.columns}})
+st.caption("Readings per tag: read, good, and flagged by each screening rule (hover a header for its meaning).")
 quiet = [rule_label(c) for c in rule_cols if c not in used]
 if quiet:
     st.caption("No reading of this period was flagged as: " + "; ".join(quiet) + ".")
@@ -67,6 +71,10 @@ if len(gaps):
         g = g.sort_values("missing_intervals", ascending=False, kind="stable")
     g = g.rename(columns=rule_label).rename(index=name_of)
     g.index.name = "tag"
-    st.dataframe(g, key="dq_gaps", column_config={"tag": st.column_config.TextColumn(width="large")})
+    st.dataframe(g, key="dq_gaps", column_config={
+        "tag": st.column_config.TextColumn(width="large"),
+        **{c: st.column_config.NumberColumn(c, help=helps.get(c), width="small") for c in g.columns}})
+    st.caption("Grid intervals per tag: with a usable value, without one, carried forward from an earlier "
+               "sample, or with flagged values only.")
 else:
     ui.not_available("Gap counts")

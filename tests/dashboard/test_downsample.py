@@ -82,6 +82,20 @@ def test_input_types(kind):
     assert lttb_indices(conv(x), conv(y), 10).tolist() == lttb_reference(x, y, 10)
 
 
+def test_strided_columns_are_accepted():
+    # a column of a wide frame is a strided view; the library needs contiguous memory
+    idx = pd.date_range("2026-01-01", periods=30_000, freq="1min", tz="UTC")
+    wide = pd.DataFrame(np.random.default_rng(7).standard_normal((30_000, 3)).cumsum(axis=0), index=idx,
+                        columns=["a", "b", "c"])
+    y = np.ascontiguousarray(wide.to_numpy())[:, 1]
+    assert not y.flags["C_CONTIGUOUS"]
+    for method in list_methods():
+        out = thin(wide[["b"]], "b", 1000, method=method)
+        assert 1000 <= len(out) <= 2002
+    assert lttb_indices(np.arange(30_000.0), y, 500).tolist() == \
+        lttb_reference(list(range(30_000)), y.tolist(), 500)
+
+
 def test_thin_caps_points_and_drops_nan():
     idx = pd.date_range("2026-01-01", periods=60_000, freq="1min", tz="UTC")
     f = pd.DataFrame({"v": np.sin(np.arange(60_000) / 900.0)}, index=idx)

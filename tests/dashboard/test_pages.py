@@ -169,9 +169,9 @@ def test_quality_numbers_and_period(monkeypatch, hourly_url):
     gaps = [d.value for d in at.dataframe][-1]
     # readable names: the tag with what it measures (demo configuration), the rule in words, worst first
     assert gaps.index[0] == "R210-AT-105, outlet concentration of MMP (online NIR, product)"
-    assert gaps.iloc[0]["intervals without a value"] == 5
+    assert gaps.iloc[0]["without a value"] == 5
     table = [d.value for d in at.dataframe][0]
-    assert table["readings flagged"].is_monotonic_decreasing and "historian quality not good" in table.columns
+    assert table["flagged"].is_monotonic_decreasing and "quality not good" in table.columns
     assert not any("_" in c for c in table.columns)
 
 
