@@ -77,7 +77,7 @@ with c[2]:
         kept = state.get(key_of["residence_time"])
         if kept is None:
             kept = to_shown(present["residence_time"] * present["feed_flow"] / q, "s", "h")
-        state[key_of["residence_time"]] = float(min(max(round(kept, 2), a), b))   # inside the range at this feed
+        state[key_of["residence_time"]] = float(min(max(kept, a), b))   # inside the safe range at this feed flow
         tau_shown = st.slider(f"{LEVER_LABELS['residence_time']} [h]", a, b, step=step,
                               key=key_of["residence_time"], format="%.2f",
                               help="Bounded by the safe level (hold-up) limits at the chosen feed flow.")

@@ -18,6 +18,12 @@ setting outside the range. When no setting in the range reaches the target,
 the result says so and gives the best production the range allows. Every
 result carries :data:`~kinetrace.monitor._common.CAUTIONS`.
 
+:func:`predict_setting` evaluates one setting of all three levers (conversion,
+production, margin to each limit) with the same model, for the dashboard's
+interactive what-if; it refuses a setting outside the safe ranges.
+:func:`model_from_parameters` rebuilds the unit as a check used it from the
+parameters that check stored.
+
 Caution
 -------
 Estimates only. A higher temperature or throughput changes heat release,
