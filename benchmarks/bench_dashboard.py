@@ -108,10 +108,10 @@ def in_app(p, url: str, code: str) -> list[float]:
             first = links[0]
             trends = next(lp for lp in links if lp[1].endswith("/trends"))
             for _ in range(REPEATS):
-                page.locator("[data-testid=stSidebarNavLink]", has_text=first[0]).click()
+                _click(page, first)
                 _drawn_on(page, first[1])
                 t0 = time.perf_counter()
-                page.locator("[data-testid=stSidebarNavLink]", has_text=trends[0]).click()
+                _click(page, trends)
                 page.wait_for_function(DRAWN, polling=20)
                 times.append(time.perf_counter() - t0)
             ctx.close()
@@ -128,10 +128,14 @@ PAGE_DRAWN = """() => {
 }"""
 
 
-def _nav_links(page) -> list[tuple[str, str]]:
-    """(label, path) of every sidebar page link."""
+def _nav_links(page) -> list[tuple[str, str, str]]:
+    """(label, path, href) of every sidebar page link."""
     return page.evaluate("""() => [...document.querySelectorAll('[data-testid=stSidebarNavLink]')]
-        .map(a => [a.innerText.trim(), new URL(a.href).pathname])""")
+        .map(a => [a.innerText.trim().split('\\n').pop(), new URL(a.href).pathname, a.getAttribute('href')])""")
+
+
+def _click(page, link) -> None:
+    page.locator(f'[data-testid=stSidebarNavLink][href="{link[2]}"]').click()
 
 
 def _drawn_on(page, path: str) -> None:
@@ -153,7 +157,7 @@ def every_page(p, url: str) -> dict[str, tuple[float, float]]:
     finally:
         serve.stop(proc)
     out = {}
-    for label, path in links:
+    for label, path, href in links:
         proc, base = serve.start({"KINETRACE_STORE_URL": url})
         try:
             with tempfile.TemporaryDirectory() as profile:
@@ -166,10 +170,10 @@ def every_page(p, url: str) -> dict[str, tuple[float, float]]:
                 other = next(lp for lp in links if lp[1] != path)
                 times = []
                 for _ in range(REPEATS):
-                    page.locator("[data-testid=stSidebarNavLink]", has_text=other[0]).click()
+                    _click(page, other)
                     _drawn_on(page, other[1])
                     t0 = time.perf_counter()
-                    page.locator("[data-testid=stSidebarNavLink]", has_text=label).click()
+                    _click(page, (label, path, href))
                     _drawn_on(page, path)
                     times.append(time.perf_counter() - t0)
                 ctx.close()
