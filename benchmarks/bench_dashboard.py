@@ -11,7 +11,8 @@ warm, the page's range set to one year in the session; median of repeats), and t
 load on a fresh server (empty cache: Streamlit's own start-up in the browser plus the store read).
 Goals: under 2 s and under 4 s. Printed, never asserted.
 
-Run: ``.venv/bin/python benchmarks/bench_dashboard.py`` (or ``make bench``).
+Run: ``.venv/bin/python benchmarks/bench_dashboard.py`` (or ``make bench``); ``... pages`` times
+every page only.
 """
 
 from __future__ import annotations
@@ -135,13 +136,25 @@ def _nav_links(page) -> list[tuple[str, str, str]]:
 
 
 def _click(page, link) -> None:
-    page.locator(f'[data-testid=stSidebarNavLink][href="{link[2]}"]').click()
+    page.locator(f'[data-testid=stSidebarNavLink][href$="{link[1]}"]').first.click()   # servers differ in port
 
 
-def _drawn_on(page, path: str) -> None:
+SIGNATURE = """() => [document.querySelector('h1') ? document.querySelector('h1').innerText : '',
+  document.querySelectorAll('[data-testid=stVegaLiteChart]').length,
+  document.querySelectorAll('[data-testid=stMetricValue]').length]"""
+SAME_AS = """s => { const h = document.querySelector('h1');
+  return h && h.innerText === s[0] && document.querySelectorAll('[data-testid=stVegaLiteChart]').length >= s[1]; }"""
+
+
+def _drawn_on(page, path: str, signature=None):
+    """Wait until the page at ``path`` is fully drawn; with a ``signature`` (title, charts, metrics of
+    the same page drawn before) also until it shows that title and at least as many charts."""
     page.wait_for_function("p => location.pathname === p", arg=path, polling=20)
     page.wait_for_timeout(50)                  # let the new run start before polling its end
+    if signature is not None:
+        page.wait_for_function(SAME_AS, arg=signature, polling=20)
     page.wait_for_function(PAGE_DRAWN, polling=20)
+    return page.evaluate(SIGNATURE)
 
 
 def every_page(p, url: str) -> dict[str, tuple[float, float]]:
@@ -165,7 +178,7 @@ def every_page(p, url: str) -> dict[str, tuple[float, float]]:
                 page.goto(f"{base}/_stcore/health")
                 t0 = time.perf_counter()
                 page.goto(f"{base}{path}?range=365d")
-                _drawn_on(page, path)
+                sig = _drawn_on(page, path)
                 cold = time.perf_counter() - t0
                 other = next(lp for lp in links if lp[1] != path)
                 times = []
@@ -174,7 +187,7 @@ def every_page(p, url: str) -> dict[str, tuple[float, float]]:
                     _drawn_on(page, other[1])
                     t0 = time.perf_counter()
                     _click(page, (label, path, href))
-                    _drawn_on(page, path)
+                    _drawn_on(page, path, sig)
                     times.append(time.perf_counter() - t0)
                 ctx.close()
         finally:
@@ -211,6 +224,12 @@ def thinning() -> list[str]:
 
 def main() -> None:
     url = build_store()
+    if sys.argv[1:] == ["pages"]:              # every page only
+        from playwright.sync_api import sync_playwright
+
+        with sync_playwright() as p:
+            _print_pages(every_page(p, url))
+        return
     store = connect(url)
     read = {}
     for code, start in (("7d", END - pd.Timedelta(days=7)), ("365d", START)):
@@ -235,13 +254,17 @@ def main() -> None:
     print(line(f"navigation from the sidebar (median of {REPEATS}, query cache warm)", nav))
     print(line("first full page load on a fresh server (empty query cache)", cold))
     print(line("server-side store read of the page's 11 series, no browser", read))
+    _print_pages(pages)
+    print("Chart thinning of one series to 1,000 points (median of 5)")
+    print("\n".join(thinning()))
+
+
+def _print_pages(pages) -> None:
     print("Every page, one year of 1-minute results (range 'last 365 days' where the page has one); "
           "goals: navigation under 2 s, first load on a fresh server under 4 s")
     for label, (c, n) in pages.items():
         print(f"  {label:<28} navigation (median of {REPEATS}) {n:.2f} s, first load {c:.2f} s, "
               f"ratio to the goals {n / 2.0:.2f} and {c / 4.0:.2f}")
-    print("Chart thinning of one series to 1,000 points (median of 5)")
-    print("\n".join(thinning()))
 
 
 if __name__ == "__main__":
