@@ -34,9 +34,15 @@ def _bounds(lever, lo, hi):
     return input_bounds(lo, hi, LEVER_SI[lever], su.shown[lever])
 
 
+def _on_grid(value, step):
+    """A value on the input's step grid (what the slider shows is what is evaluated)."""
+    digits = max(0, -int(np.floor(np.log10(step))))
+    return round(round(value / step) * step, digits)
+
+
 def _present_shown(lever, lo_hi):
-    a, b, _ = lo_hi
-    return min(max(round(to_shown(present[lever], LEVER_SI[lever], su.shown[lever]), 6), a), b)
+    a, b, step = lo_hi
+    return min(max(_on_grid(to_shown(present[lever], LEVER_SI[lever], su.shown[lever]), step), a), b)
 
 
 def _reset():
@@ -77,7 +83,7 @@ with c[2]:
         kept = state.get(key_of["residence_time"])
         if kept is None:
             kept = to_shown(present["residence_time"] * present["feed_flow"] / q, "s", "h")
-        state[key_of["residence_time"]] = float(min(max(kept, a), b))   # inside the safe range at this feed flow
+        state[key_of["residence_time"]] = float(min(max(_on_grid(kept, step), a), b))   # inside the safe range
         tau_shown = st.slider(f"{LEVER_LABELS['residence_time']} [h]", a, b, step=step,
                               key=key_of["residence_time"], format="%.2f",
                               help="Bounded by the safe level (hold-up) limits at the chosen feed flow.")
