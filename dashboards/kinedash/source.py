@@ -11,7 +11,7 @@ Long ranges are thinned where the data lives: when a range holds more than
 returns the minimum, maximum, sum and count of each of ``n_buckets`` equal-width time
 buckets (min/max per pixel column, Jugel et al. 2014), so a year of 1-minute results
 never crosses the wire row by row; shorter ranges are read with
-:meth:`kinetrace.store.Store.series` and thinned by LTTB (:mod:`.downsample`).
+:meth:`kinetrace.store.Store.series` and thinned by MinMaxLTTB (:mod:`.downsample`).
 """
 
 from __future__ import annotations
@@ -269,7 +269,7 @@ def chart_series(store: Store, unit: str, variables, start, end, *, points: int 
             rows = wide.loc[out[follow[v]].index, [v]].dropna()
             out[v] = pd.DataFrame({"value": rows[v], "lo": rows[v], "hi": rows[v]}, index=rows.index)
             continue
-        kept = thin(wide[[v]].rename(columns={v: "value"}), "value", points, method="lttb")
+        kept = thin(wide[[v]].rename(columns={v: "value"}), "value", points, method="minmaxlttb")
         out[v] = pd.DataFrame({"value": kept["value"], "lo": kept["value"], "hi": kept["value"]},
                               index=kept.index)
     return _without_flag(out, variables)

@@ -9,6 +9,8 @@ from scipy.stats import chi2
 from kinedash import cached, ui
 from kinedash.charts import trend_chart
 from kinedash.display import fmt
+from kinedash.labels import balance_label, quantity_label
+from kinedash.setting_cache import tag_info
 
 st.title("Balances and sensors")
 url = ui.store_url()
@@ -29,7 +31,7 @@ palette = ["#1f6f8b", "#c2571a", "#6a994e", "#7b2cbf", "#bc4749", "#386641"]
 st.subheader("Balance closure")
 if closures:
     data = cached.chart_series(url, unit, tuple(closures), start, end)
-    lines = {v.split(":", 1)[1]: data[v] for v in closures if v in data}
+    lines = {balance_label(v.split(":", 1)[1]): data[v] for v in closures if v in data}
     st.altair_chart(trend_chart(lines, unit=units_of[closures[0]], y_title="relative closure",
                                 colours=dict(zip(lines, palette)), envelope=data["bucketed"]), key="ch_closure")
 else:
@@ -63,37 +65,54 @@ else:
     ui.not_available("Global-test statistic")
 
 st.subheader("Reconciliation adjustments")
+alarms = cached.alarms(url, unit)
+tags = tag_info(unit)
+sensor_kinds = alarms["kind"].astype(str).str.contains("sensor|bias") if len(alarms) else []
+flagged_tags = [t for v in alarms.loc[sensor_kinds & (alarms["state"] == "open"), "variable"] for t in str(v).split(", ")] \
+    if len(alarms) else []
 if adjustments:
     by_name = {v.split(":", 1)[1]: v for v in adjustments}
-    tags = list(by_name)
-    chosen = st.multiselect("Measurements", tags, default=tags[:2], key="bal_tags")
+    stats = cached.chart_series(url, unit, tuple(adjustments), start, end)["stats"]
+    has_data = [q for q, v in by_name.items() if stats.get(v, (0, 0))[1] > 0]
+    flagged_roles = [tags[t]["role"] if t in tags else t for t in flagged_tags]
+    first = [q for q in dict.fromkeys(flagged_roles) if q in has_data]
+    default = (first + [q for q in has_data if q not in first])[:max(2, len(first))]
+    options = has_data + [q for q in by_name if q not in has_data]
+
+    def label(q):
+        who = next((t for t, i in tags.items() if i["role"] == q), None)
+        words = quantity_label(q) + (f" ({who})" if who else "")
+        return words + (" - flagged" if q in first else "") + ("" if q in has_data else " - no value in range")
+
+    chosen = st.multiselect("Measurements", options, default=default, format_func=label, key="bal_tags",
+                            help="Flagged sensors come first; measurements without a value in the range are last.")
     if chosen:
         data = cached.chart_series(url, unit, tuple(by_name[t] for t in chosen), start, end)
-        lines = {t: data[by_name[t]] for t in chosen if by_name[t] in data}
+        lines = {quantity_label(t): data[by_name[t]] for t in chosen if by_name[t] in data}
         z = all(by_name[t].startswith("adjust_z:") for t in chosen)
         st.altair_chart(trend_chart(lines, unit="", y_title="standardised adjustment" if z else "adjustment",
                                     colours=dict(zip(lines, palette)), envelope=data["bucketed"]), key="ch_adj")
         means = {t: data["stats"][by_name[t]] for t in chosen if by_name[t] in data["stats"]}
         st.caption("Mean adjustment in range: " + "; ".join(
-            f"{t} {fmt(s / n if n else np.nan, '.3g', units_of.get(by_name[t], ''))}"
+            f"{quantity_label(t)} {fmt(s / n if n else np.nan, '.3g', units_of.get(by_name[t], ''))}"
             for t, (s, n, _, _) in means.items()))
     else:
-        st.caption("Pick one or more tags.")
+        st.caption("Pick one or more measurements.")
 else:
     ui.not_available("Reconciliation adjustments")
 
 st.subheader("Flagged sensors")
-alarms = cached.alarms(url, unit)
-tags = set(cached.quality(url, unit)["tag"])
+known = set(cached.quality(url, unit)["tag"]) | set(tags)
 if len(alarms):   # alarms on a sensor: a sensor kind, or a variable that is one of the unit's tags
-    on_tag = alarms["variable"].map(lambda v: any(t in tags for t in str(v).split(", ")))
+    on_tag = alarms["variable"].map(lambda v: any(t in known for t in str(v).split(", ")))
     sensor = alarms[alarms["kind"].str.contains("sensor|bias") | on_tag]
 else:
     sensor = alarms
 if len(sensor):
     st.metric("Open sensor alarms", str(int((sensor["state"] == "open").sum())))
     view = pd.DataFrame({
-        "tag": sensor["variable"], "kind": sensor["kind"], "state": sensor["state"],
+        "sensor": [", ".join(tags.get(t, {}).get("label", t) for t in str(v).split(", ")) for v in sensor["variable"]],
+        "finding": sensor["kind"].astype(str).str.replace("_", " "), "state": sensor["state"],
         "onset (UTC)": sensor["onset"].dt.strftime("%Y-%m-%d %H:%M"),
         "detected (UTC)": sensor["detected"].dt.strftime("%Y-%m-%d %H:%M"),
         "bias estimate": [fmt(m, ".3g", u) for m, u in zip(sensor["magnitude"], sensor["magnitude_unit"])],
@@ -103,6 +122,6 @@ else:
     st.success("No sensor flagged for this unit.", icon=":material/check_circle:")
 if biases:
     data = cached.chart_series(url, unit, tuple(biases), start, end)
-    lines = {v.split(":", 1)[1]: data[v] for v in biases if v in data}
+    lines = {tags.get(v.split(":", 1)[1], {}).get("label", v.split(":", 1)[1]): data[v] for v in biases if v in data}
     st.altair_chart(trend_chart(lines, unit=units_of[biases[0]], y_title="bias estimate",
                                 colours=dict(zip(lines, palette)), envelope=data["bucketed"]), key="ch_bias")

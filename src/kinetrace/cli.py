@@ -444,10 +444,32 @@ def dashboard(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c",
               store_url: str = typer.Option(None, "--store-url",
                                             help="Results store URL (wins over KINETRACE_STORE_URL and the config)."),
               port: int = typer.Option(8501, "--port", help="Port on 127.0.0.1.")):
-    """Serve the dashboard (read-only view of the results store) on http://127.0.0.1:PORT/ (PORT from --port)."""
+    """Serve the dashboard (read-only view of the results store) on http://127.0.0.1:PORT/ (PORT from --port).
+
+    Exit 2 without serving when the configuration cannot be loaded or the port is taken."""
     import os
+    import socket
     import subprocess
 
+    from .config import load_config
+
+    try:                                   # checked before any URL is printed
+        load_config(config)
+    except (KinetraceError, OSError) as exc:
+        typer.echo(f"kinetrace dashboard: configuration {config} cannot be loaded: {scrub(exc, *_secret_urls())}",
+                   err=True)
+        raise typer.Exit(2) from None
+    if not 1 <= port <= 65535:
+        typer.echo(f"kinetrace dashboard: --port {port} is not a TCP port (1 to 65535)", err=True)
+        raise typer.Exit(2)
+    with socket.socket(socket.AF_INET, socket.SOCK_STREAM) as probe:
+        probe.setsockopt(socket.SOL_SOCKET, socket.SO_REUSEADDR, 1)   # as the server binds: a listener still blocks
+        try:
+            probe.bind(("127.0.0.1", port))
+        except OSError as exc:
+            typer.echo(f"kinetrace dashboard: port {port} on 127.0.0.1 is not free ({exc.strerror}); "
+                       "stop what uses it or choose another with --port", err=True)
+            raise typer.Exit(2) from None
     env = dict(os.environ, KINETRACE_CONFIG=str(Path(config).resolve()))
     if store_url:
         env["KINETRACE_STORE_URL"] = store_url

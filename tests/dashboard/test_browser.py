@@ -163,6 +163,9 @@ def test_balances(browser_page, served, store):
             click_radio(page, "last 24 h")
         gt = store.series("R-210", ["global_test"], end - pd.Timedelta(days=days), end)["global_test"].max()
         expect(metric_value(page, "Largest global-test")).to_have_text(f"{gt:.3g}")
+    # the flagged sensor's measurement is selected first, by a readable name
+    picker = page.locator("[data-testid=stMultiSelect]", has_text="Measurements")
+    expect(picker).to_contain_text("feed flow (R210-FT-101) - flagged")
     finish(page, "03_balances_and_sensors")
 
 
@@ -172,15 +175,19 @@ def test_kinetics(browser_page, served, store):
     from kinedash.arrhenius import steady_points
 
     page = browser_page
-    open_page(page, served, "kinetics", "Steady periods plotted", charts=1)
+    open_page(page, served, "kinetics", "Steady periods in range", charts=2)
     end = END - pd.Timedelta(hours=1) + pd.Timedelta("1us")
-    ea = store.parameters("R-210").set_index("name").loc["activation_energy:addition", "value"]
-    expect(metric_value(page, "Ea of the stored fit")).to_have_text(f"{ea / 1000:.1f}")
+    ea = store.parameters("R-210").set_index("name").loc["activation_energy:addition"]
+    expect(metric_value(page, "Ea of the joint fit")).to_have_text(f"{ea['value'] / 1000:.1f}")
     for days in (90, 7):
         if days == 7:
             click_radio(page, "last 7 days")
         n = len(steady_points(store, "R-210", "k_apparent:addition", end - pd.Timedelta(days=days), end))
-        expect(metric_value(page, "Steady periods plotted")).to_have_text(str(n))
+        expect(metric_value(page, "Steady periods in range")).to_have_text(str(n))
+    # the 1000/T axis carries a handful of round ticks, not twenty
+    n_ticks = page.evaluate("""() => { const ax = document.querySelector(`[aria-label^="X-axis titled '1000 / T"]`);
+        return ax ? ax.querySelectorAll('.role-axis-label text').length : -1; }""")
+    assert 2 <= n_ticks <= 6, n_ticks
     finish(page, "04_kinetics")
 
 
@@ -204,14 +211,27 @@ def test_data_quality(browser_page, served, store):
 def test_whatif(browser_page, served, store):
     from playwright.sync_api import expect
 
+    from .test_pages import _library_prediction
+
     page = browser_page
-    w = store.whatif("R-210").set_index("lever")
-    open_page(page, served, "whatif", "Setting that restores the target", charts=1)
-    expect(page.get_by_text("Estimates only.", exact=False)).to_be_visible()
+    open_page(page, served, "whatif", "Predicted conversion", charts=1)
+    expect(page.get_by_text("Estimates only.", exact=False)).to_have_count(1)          # the caution once
     expect(page.get_by_text("relief and runaway studies", exact=False)).to_be_visible()
-    expect(metric_value(page, "Setting that restores the target")).to_have_text("none within limits")
-    click_radio(page, "temperature")
-    t = w.loc["temperature"]
-    expect(metric_value(page, "Setting that restores the target")).to_have_text(f"{t['proposed_value'] - 273.15:.4g}")
-    assert t["safe_low"] <= t["proposed_value"] <= t["safe_high"]
+    sliders = page.locator("[data-testid=stSlider] input[type=range]")
+    expect(sliders).to_have_count(3)
+    for i, presses in ((0, 25), (1, 40)):              # temperature +2.5 K, feed flow +0.40 m3/h
+        sliders.nth(i).focus()
+        for _ in range(presses):
+            page.keyboard.press("ArrowRight")
+        page.wait_for_timeout(1500)
+    page.wait_for_function("() => !document.querySelector('[data-testid=stStatusWidget]')")
+    vals = [float(sliders.nth(i).input_value()) for i in range(3)]
+    p = _library_prediction(store, "R-210", {"temperature": vals[0] + 273.15, "feed_flow": vals[1] / 3600,
+                                             "residence_time": vals[2] * 3600})
+    expect(metric_value(page, "Predicted conversion")).to_have_text(f"{p.conversion:.4f}")
+    expect(metric_value(page, "Predicted production")).to_have_text(f"{p.production_mass * 86.4:.2f}")
+    for i in range(3):                                  # never outside the configured safe limits
+        lo, hi = (float(sliders.nth(i).get_attribute(a)) for a in ("min", "max"))
+        assert lo <= vals[i] <= hi
+    assert (float(sliders.nth(0).get_attribute("min")), float(sliders.nth(0).get_attribute("max"))) == (45.0, 85.0)
     finish(page, "06_what_if")

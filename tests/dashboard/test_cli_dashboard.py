@@ -28,3 +28,34 @@ def test_dashboard_command(monkeypatch):
     assert seen["env"]["KINETRACE_STORE_URL"] == "sqlite:////srv/kt/results.sqlite"
     assert seen["env"]["KINETRACE_CONFIG"].endswith("demo_plant.toml")
     assert "http://127.0.0.1:8611/" in res.output
+
+
+def _never_called(*a, **kw):
+    raise AssertionError("streamlit must not be started")
+
+
+def test_dashboard_refuses_a_config_it_cannot_load(monkeypatch, tmp_path):
+    monkeypatch.setattr(subprocess, "call", _never_called)
+    bad = tmp_path / "plant.toml"
+    bad.write_text("[site\nname = 'x'\n")
+    for config in (tmp_path / "not_there.toml", bad):
+        res = CliRunner().invoke(app, ["dashboard", "--config", str(config), "--port", "8612"])
+        assert res.exit_code == 2, res.output
+        assert f"configuration {config} cannot be loaded" in res.output
+        assert "http://" not in res.output and "Traceback" not in res.output
+
+
+def test_dashboard_refuses_a_busy_port(monkeypatch):
+    import socket
+
+    monkeypatch.setattr(subprocess, "call", _never_called)
+    with socket.socket() as busy:
+        busy.bind(("127.0.0.1", 0))
+        busy.listen()
+        port = busy.getsockname()[1]
+        res = CliRunner().invoke(app, ["dashboard", "--config", str(ROOT / "config" / "demo_plant.toml"),
+                                       "--port", str(port)])
+    assert res.exit_code == 2, res.output
+    assert f"port {port} on 127.0.0.1 is not free" in res.output and "http://" not in res.output
+    res = CliRunner().invoke(app, ["dashboard", "--port", "70000"])
+    assert res.exit_code == 2 and "not a TCP port" in res.output

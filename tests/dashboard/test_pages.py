@@ -9,7 +9,7 @@ from streamlit.testing.v1 import AppTest
 from kinedash.arrhenius import steady_points
 from kinetrace.store import open_store
 
-from .conftest import APP, END
+from .conftest import APP, END, ROOT
 
 PAGES = ["overview", "unit", "balances", "kinetics", "quality", "whatif"]
 
@@ -97,10 +97,14 @@ def test_balances_numbers_and_tag_picker(monkeypatch, hourly_url):
                       + pd.Timedelta("1us"), END)["global_test"]
     assert metric(at, "Largest global-test") == f"{gt.max():.3g}"
     assert metric(at, "Open sensor alarms") == "1"
+    # default: the flagged sensor's measurement first (open bias alarm on R210-FT-101, the feed flow
+    # meter of the demo configuration), then others with values in the range; readable names
+    assert at.multiselect(key="bal_tags").value[0] == "feed_flow"
+    assert any("feed flow (R210-FT-101) - flagged" == o for o in at.multiselect(key="bal_tags").options)
     before = [c.value for c in at.caption if c.value.startswith("Mean adjustment")]
     at.multiselect(key="bal_tags").set_value(["outlet_flow"]).run()
     after = [c.value for c in at.caption if c.value.startswith("Mean adjustment")]
-    assert before != after and "feed_flow" not in after[0] and "outlet_flow" in after[0]
+    assert before != after and "feed flow" not in after[0] and "outlet flow" in after[0]
     rejected = store.series("R-210", ["global_test_alarm"], END - pd.Timedelta(days=7) - pd.Timedelta(hours=1)
                             + pd.Timedelta("1us"), END)["global_test_alarm"].sum()
     assert metric(at, "Intervals rejected") == f"{rejected:.0f}"
@@ -113,15 +117,43 @@ def test_balances_numbers_and_tag_picker(monkeypatch, hourly_url):
 def test_kinetics_numbers_and_range(monkeypatch, hourly_url):
     store = open_store(hourly_url, create=False)
     at = app(monkeypatch, hourly_url, "kinetics")
-    ea = store.parameters("R-210").set_index("name").loc["activation_energy:addition", "value"]
-    assert metric(at, "Ea of the stored fit") == f"{ea / 1000:.1f}"
+    ea = store.parameters("R-210").set_index("name").loc["activation_energy:addition"]
+    assert metric(at, "Ea of the joint fit") == f"{ea['value'] / 1000:.1f}"
+    assert metric(at, "Its 95 % interval") == f"{ea['ci_low'] / 1000:.1f} to {ea['ci_high'] / 1000:.1f}"
     end = END - pd.Timedelta(hours=1) + pd.Timedelta("1us")
     n90 = len(steady_points(store, "R-210", "k_apparent:addition", end - pd.Timedelta(days=90), end))
-    assert metric(at, "Steady periods plotted") == str(n90)
+    assert metric(at, "Steady periods in range") == str(n90)
+    charts = at.get("vega_lite_chart")
+    assert len(charts) == 2               # Arrhenius plot (the invented temperatures span > 3 K) and the weights
     at.radio(key="kin_range").set_value("last 7 days").run()
     n7 = len(steady_points(store, "R-210", "k_apparent:addition", end - pd.Timedelta(days=7), end))
-    assert metric(at, "Steady periods plotted") == str(n7) and n7 != n90
-    assert len(at.dataframe) >= 2                               # parameter table and rate-law table
+    assert metric(at, "Steady periods in range") == str(n7) and n7 != n90
+    # the rate-law table: AICc differences and Akaike weights (Burnham & Anderson 2002), best first
+    laws = [d.value for d in at.dataframe if "Akaike weight" in d.value.columns][0]
+    assert laws["AICc difference to the best"].tolist() == [0.0, 13.6] and laws["Akaike weight"].iloc[0] == 0.999
+    at.radio(key="kin_range").set_value("last 24 h").run()             # too few steady periods: no plot, said
+    assert any("No Arrhenius plot" in i.value or "No steady window" in i.value for i in at.info)
+
+
+def test_kinetics_narrow_span_is_refused(monkeypatch, tmp_path):
+    """A 2 K span (the joint fit's threshold is 3 K): the page says so and draws no Arrhenius plot."""
+    from tests.dashboard import fill
+
+    make = fill.unit_series
+
+    def narrow(*a, **kw):                      # the invented temperatures squeezed into 1 K
+        f = make(*a, **kw)
+        t = f["temperature"]
+        f["temperature"] = 343.15 + (t - t.mean()) / (t.max() - t.min())
+        return f
+
+    monkeypatch.setattr(fill, "unit_series", narrow)
+    url = f"sqlite:///{tmp_path / 'narrow.sqlite'}"
+    fill.fill_store(url, start="2026-11-01T00:00Z", end="2026-12-01T00:00Z", units=("R-210",)).close()
+    at = app(monkeypatch, url, "kinetics")
+    text = " ".join(i.value for i in at.info)
+    assert "No Arrhenius plot" in text and "K only (the joint fit needs 3 K" in text
+    assert not any("Arrhenius" in str(c.proto.spec) for c in at.get("vega_lite_chart"))
 
 
 def test_quality_numbers_and_period(monkeypatch, hourly_url):
@@ -136,24 +168,89 @@ def test_quality_numbers_and_period(monkeypatch, hourly_url):
     at.selectbox(key="dq_period").set_value(q["period_start"].min().strftime("%Y-%m-%d %H:%M")).run()
     assert metric(at, "Readings flagged") == str(older.loc[rules, "count"].sum())
     gaps = [d.value for d in at.dataframe][-1]
-    assert gaps.loc["R210-AT-105", "missing_intervals"] == 5
+    # readable names: the tag with what it measures (demo configuration), the rule in words, worst first
+    assert gaps.index[0] == "R210-AT-105, outlet concentration of MMP (online NIR, product)"
+    assert gaps.iloc[0]["without a value"] == 5
+    table = [d.value for d in at.dataframe][0]
+    assert table["flagged"].is_monotonic_decreasing and "quality not good" in table.columns
+    assert not any("_" in c for c in table.columns)
 
 
-def test_whatif_cautions_limits_and_lever(monkeypatch, hourly_url):
+def _library_prediction(store, unit, setting):
+    """The prediction of kinetrace.monitor.whatif for the unit as the check stored it, built here from the
+    configuration and the store without the dashboard's code."""
+    from kinetrace.config import load_config
+    from kinetrace.config.model import unit_model
+    from kinetrace.monitor.whatif import model_from_parameters, predict_setting, production_at, volume_limits_from_level
+
+    cfg = load_config(ROOT / "config" / "demo_plant.toml")
+    u = next(x for x in cfg.units if x.id == unit)
+    model = model_from_parameters(unit_model(u), store.parameters(unit))
+    activity = float(store.forecasts(unit)["activity_now"].iloc[-1])
+    vol = volume_limits_from_level(model, u.limits.level)
+    p = predict_setting(model, activity=activity, volume_limits=vol, **setting)
+    # the same production as the check's own function (production_at), at V = tau Q
+    direct = production_at(model, activity=activity, feed_flow=setting["feed_flow"],
+                           temperature=setting["temperature"], volume=setting["residence_time"] * setting["feed_flow"])
+    assert p.production == pytest.approx(direct, rel=1e-12)
+    return p
+
+
+def test_whatif_numbers_equal_the_library_for_three_settings(monkeypatch, hourly_url):
+    monkeypatch.setenv("KINETRACE_CONFIG", str(ROOT / "config" / "demo_plant.toml"))
     store = open_store(hourly_url, create=False)
-    w = store.whatif("R-210").set_index("lever")
     at = app(monkeypatch, hourly_url, "whatif")
     text = " ".join(x.value for x in at.warning)
     for phrase in ("Estimates only", "safe operating envelope", "relief and runaway studies",
                    "management-of-change", "local codes and licensed engineering practice"):
         assert phrase in text
-    at.radio(key="wi_lever").set_value("temperature").run()
-    t = w.loc["temperature"]
-    assert metric(at, "Setting that restores the target") == f"{t['proposed_value'] - 273.15:.4g}"
-    assert metric(at, "Current temperature") == f"{t['current_value'] - 273.15:.4g}"
-    assert metric(at, "Safe limits") == f"{t['safe_low'] - 273.15:.4g} to {t['safe_high'] - 273.15:.4g}"
-    at.radio(key="wi_lever").set_value("feed_flow").run()
-    assert metric(at, "Setting that restores the target") == "none within limits"
+    assert len(at.warning) == 1                                    # the caution once
+    t, q, tau = at.slider(key="wi_temperature"), at.slider(key="wi_feed_flow"), at.slider(key="wi_residence_time")
+    # the inputs offer the configured safe range only (demo plant: 45-85 degC, 1.5-7.0 m3/h)
+    assert (t.min, t.max) == (45.0, 85.0) and (q.min, q.max) == (1.5, 7.0)
+    for temp_c, flow_h, tau_h in ((70.0, 4.0, 2.5), (80.5, 6.2, 1.5), (45.0, 1.5, 9.0)):
+        at.slider(key="wi_temperature").set_value(temp_c).run()
+        at.slider(key="wi_feed_flow").set_value(flow_h).run()
+        hi = at.slider(key="wi_residence_time").max           # the hold-up range at this feed flow
+        lo = at.slider(key="wi_residence_time").min
+        tau_h = min(max(tau_h, lo), hi)
+        at.slider(key="wi_residence_time").set_value(tau_h).run()
+        assert not at.exception
+        p = _library_prediction(store, "R-210", {"temperature": temp_c + 273.15, "feed_flow": flow_h / 3600,
+                                                 "residence_time": tau_h * 3600})
+        assert metric(at, "Predicted conversion") == f"{p.conversion:.4f}"
+        assert metric(at, "Predicted production") == f"{p.production_mass * 86.4:.2f}"        # kg/s -> t/d
+        margins = [d.value for d in at.dataframe if "margin to the low limit" in d.value.columns][0]
+        assert margins.iloc[0]["margin to the low limit"] == f"{p.margins['temperature'][0]:.3g} degC"
+        assert margins.iloc[1]["margin to the high limit"] == f"{p.margins['feed_flow'][1] * 3600:.3g} m3/h"
+    # the 5.1-14.1 m3 hold-up (level 30-90 % on the level-volume table) bounds the residence time at 1.5 m3/h
+    assert (lo, hi) == (pytest.approx(5.1 / 1.5, abs=0.01), pytest.approx(14.1 / 1.5, abs=0.01))
+    at.button(key="wi_reset").click().run()                          # back to the present operation
+    w = store.whatif("R-210").set_index("lever")
+    # on the input's 0.1 K grid: what the slider shows is what is evaluated
+    assert at.slider(key="wi_temperature").value == pytest.approx(w.loc["temperature", "current_value"] - 273.15, abs=0.05)
+    at.selectbox(key="kt_unit").set_value("R-220").run()             # the other unit, fixed hold-up: no tau input
+    assert not at.exception and metric(at, "Residence time")
+
+
+def test_whatif_refuses_a_setting_outside_the_limits():
+    import numpy as np
+
+    from kinetrace.config.model import RateLawModel, UnitModel
+    from kinetrace.errors import KinetraceError
+    from kinetrace.monitor.whatif import predict_setting
+
+    law = RateLawModel("power_law", 0.01, 60e3, 350.0, {"orders": {"A": 1.0}})
+    m = UnitModel("R-1", ("A", "P"), np.array([0.1, 0.1]), ("r1",), np.array([[-1.0], [1.0]]), {"r1": law}, "A", "P",
+                  0.5, 0.4, None, {"A": 1000.0}, (), (330.0, 370.0), (1e-4, 2e-3))
+    # first order in a CSTR: X = k tau / (1 + k tau) (Fogler 2016, eq. 5-15 form); k tau = 4 -> 0.8
+    ok = predict_setting(m, activity=1.0, temperature=350.0, feed_flow=1e-3, residence_time=400.0,
+                         volume_limits=(0.2, 0.6))
+    assert ok.conversion == pytest.approx(0.8, rel=1e-12)
+    for bad in ({"temperature": 371.0}, {"feed_flow": 2.1e-3}, {"residence_time": 700.0}):
+        kw = {"temperature": 350.0, "feed_flow": 1e-3, "residence_time": 400.0, **bad}
+        with pytest.raises(KinetraceError, match="outside the safe range"):
+            predict_setting(m, activity=1.0, volume_limits=(0.2, 0.6), **kw)
 
 
 @pytest.mark.parametrize("page", PAGES)

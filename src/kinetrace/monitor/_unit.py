@@ -170,6 +170,27 @@ class UnitReactions:
             return self._production_single(activity, q, t, volume)
         return self._production_multi(activity, q, t, volume)
 
+    def key_conversion(self, activity, feed_flow, temperature, volume):
+        """Fractional conversion of the key reactant at steady state, 1 - C_key / C_key,0. [-]"""
+        q = np.asarray(feed_flow, dtype=float)
+        t = np.asarray(temperature, dtype=float)
+        c0 = self.feed[self.key]
+        if self.single:
+            law = self.laws[0]
+            k = np.asarray(activity, dtype=float) * self.k_fresh(t)
+            with np.errstate(divide="ignore", invalid="ignore"):
+                tau = np.asarray(volume, dtype=float) / q
+            sol = solve_cstr(law.method, tau, self.feed, k, key=self.key, stoichiometry=self._stoich(0),
+                             temperature=t if law.method == "reversible" else None, **law.params)
+            return 1.0 - np.asarray(sol.concentrations[self.key], dtype=float) / c0
+        a, q, t, v = np.broadcast_arrays(*(np.asarray(x, dtype=float) for x in (activity, q, t, volume)))
+        out = np.full(a.shape, np.nan)
+        ik = self.species.index(self.key)
+        for i in np.ndindex(a.shape):
+            if np.isfinite(a[i]) and np.isfinite(t[i]) and np.isfinite(v[i]) and q[i] > 0 and a[i] >= 0:
+                out[i] = 1.0 - self._outlet(float(a[i]), float(q[i]), float(t[i]), float(v[i]))[ik] / c0
+        return out
+
     def required_activity(self, feed_flow, temperature, volume, target_rate):
         """Activity giving ``target_rate`` [mol/s]; inf where no activity can, 0 where none is needed."""
         if self.single:

@@ -18,6 +18,12 @@ setting outside the range. When no setting in the range reaches the target,
 the result says so and gives the best production the range allows. Every
 result carries :data:`~kinetrace.monitor._common.CAUTIONS`.
 
+:func:`predict_setting` evaluates one setting of all three levers (conversion,
+production, margin to each limit) with the same model, for the dashboard's
+interactive what-if; it refuses a setting outside the safe ranges.
+:func:`model_from_parameters` rebuilds the unit as a check used it from the
+parameters that check stored.
+
 Caution
 -------
 Estimates only. A higher temperature or throughput changes heat release,
@@ -34,6 +40,8 @@ References
 
 from __future__ import annotations
 
+import dataclasses
+import re
 from dataclasses import dataclass
 
 import numpy as np
@@ -47,7 +55,11 @@ from kinetrace.monitor._unit import UnitReactions, unit_reactions
 
 __all__ = [
     "WhatIf",
+    "SettingPrediction",
     "CAUTIONS",
+    "model_from_parameters",
+    "predict_setting",
+    "safe_ranges",
     "list_levers",
     "production_at",
     "what_if",
@@ -365,3 +377,213 @@ def what_if(
             limits = (v_lo / feed_flow, v_hi / feed_flow)
         out.append(_lever_result(rx, lever, limits=limits, show=model.display_units, **kw))
     return out
+
+
+@dataclass(frozen=True)
+class SettingPrediction:
+    """The model's prediction at one setting inside the safe limits (see :func:`predict_setting`).
+
+    Attributes
+    ----------
+    temperature, feed_flow, residence_time, volume : float
+        The setting. [K], [m^3/s], [s], [m^3] (volume = residence time x feed flow)
+    conversion : float
+        Conversion of the key reactant. [-]
+    production : float
+        Product rate. [mol/s]
+    production_mass : float
+        Product rate. [kg/s]
+    target : float
+        Product rate wanted. [mol/s]
+    limits : dict
+        ``lever -> (low, high)``: the safe range of each lever at this setting; the residence
+        time range is the hold-up range divided by this feed flow. [K], [m^3/s], [s]
+    margins : dict
+        ``lever -> (above low, below high)``: distance of the setting to each limit, never
+        negative. [unit of the lever]
+    cautions : str
+        Standard cautions; always shown with the result.
+    """
+
+    temperature: float
+    feed_flow: float
+    residence_time: float
+    volume: float
+    conversion: float
+    production: float
+    production_mass: float
+    target: float
+    limits: dict
+    margins: dict
+    cautions: str = CAUTIONS
+
+
+def safe_ranges(model: UnitModel, *, feed_flow: float, volume_limits) -> dict[str, tuple[float, float]]:
+    """Safe range of each lever: the configured temperature and feed-flow limits, and the residence
+    times the safe hold-up range allows at ``feed_flow`` (tau = V / Q).
+
+    Parameters
+    ----------
+    model : UnitModel
+    feed_flow : float
+        Feed flow of the setting. [m^3/s]
+    volume_limits : tuple of float
+        Safe hold-up range. [m^3]
+
+    Returns
+    -------
+    dict
+        ``temperature`` [K], ``feed_flow`` [m^3/s], ``residence_time`` [s] -> (low, high).
+    """
+    t = _check_limits(model.temperature_limits, f"unit {model.id} temperature_limits")
+    q = _check_limits(model.feed_flow_limits, f"unit {model.id} feed_flow_limits")
+    v = _check_limits(volume_limits, f"unit {model.id} volume_limits")
+    if not (np.isfinite(feed_flow) and feed_flow > 0):
+        raise KinetraceError(f"unit {model.id}: feed flow must be a positive number, got {feed_flow!r}")
+    return {"temperature": t, "feed_flow": q, "residence_time": (v[0] / feed_flow, v[1] / feed_flow)}
+
+
+def predict_setting(
+    model: UnitModel,
+    *,
+    activity: float,
+    temperature: float,
+    feed_flow: float,
+    residence_time: float,
+    volume_limits,
+    target_rate: float | None = None,
+    feed_conc: dict | None = None,
+    fresh_k_ref: float | None = None,
+    yield_factor: float = 1.0,
+    rel_tol: float = 1e-9,
+) -> SettingPrediction:
+    """Conversion, production and margin to each safe limit at one setting of the three levers.
+
+    The same steady-state CSTR model as :func:`what_if` and :func:`production_at`. A setting
+    outside the safe limits is refused (never evaluated); ``rel_tol`` only absorbs the rounding
+    of a setting taken from a limit shown in display units.
+
+    Parameters
+    ----------
+    model : UnitModel
+        The unit, with the rate-law parameters the check used (:func:`model_from_parameters`).
+    activity : float
+        Catalyst activity. [-]
+    temperature : float
+        Reactor temperature. [K]
+    feed_flow : float
+        Feed flow. [m^3/s]
+    residence_time : float
+        Residence time V / Q. [s]
+    volume_limits : tuple of float
+        Safe hold-up range. [m^3]
+    target_rate : float, optional
+        Product rate wanted [mol/s]; default ``model.target_rate``.
+    feed_conc, fresh_k_ref, yield_factor
+        As in :func:`kinetrace.monitor.forecast.required_activity`.
+
+    Returns
+    -------
+    SettingPrediction
+
+    Raises
+    ------
+    KinetraceError
+        A setting outside its safe range (naming the lever, the value and the range), or a
+        non-positive input.
+
+    References
+    ----------
+    .. [1] Fogler, H. S. (2016). Elements of Chemical Reaction Engineering, 5th ed., ch. 5.
+
+    Examples
+    --------
+    A first-order unit at k tau = 4 converts 80 % (X = k tau / (1 + k tau)):
+
+    >>> import numpy as np
+    >>> from kinetrace.config.model import RateLawModel, UnitModel
+    >>> law = RateLawModel("power_law", 0.01, 60e3, 350.0, {"orders": {"A": 1.0}})
+    >>> m = UnitModel("R-1", ("A", "P"), np.array([0.1, 0.1]), ("r1",), np.array([[-1.0], [1.0]]),
+    ...     {"r1": law}, "A", "P", 0.5, 0.4, None, {"A": 1000.0}, (), (330.0, 370.0), (1e-4, 2e-3))
+    >>> p = predict_setting(m, activity=1.0, temperature=350.0, feed_flow=1e-3, residence_time=400.0,
+    ...                     volume_limits=(0.2, 0.6))
+    >>> round(p.conversion, 6), round(p.production, 6), p.margins["temperature"]
+    (0.8, 0.8, (20.0, 20.0))
+    >>> predict_setting(m, activity=1.0, temperature=375.0, feed_flow=1e-3, residence_time=400.0,
+    ...                 volume_limits=(0.2, 0.6))
+    Traceback (most recent call last):
+    ...
+    kinetrace.errors.KinetraceError: unit R-1: reactor temperature 375 K is outside the safe range 330 to 370 K; settings outside the configured safe limits are never evaluated
+    """
+    for name, v in (("activity", activity), ("temperature", temperature), ("feed_flow", feed_flow),
+                    ("residence_time", residence_time)):
+        if not (np.isfinite(v) and v > 0):
+            raise KinetraceError(f"unit {model.id}: {name} must be a positive number, got {v!r}")
+    ranges = safe_ranges(model, feed_flow=feed_flow, volume_limits=volume_limits)
+    setting = {"temperature": float(temperature), "feed_flow": float(feed_flow),
+               "residence_time": float(residence_time)}
+    margins = {}
+    for lever, (lo, hi) in ranges.items():
+        x, slack = setting[lever], rel_tol * max(abs(lo), abs(hi))
+        if not lo - slack <= x <= hi + slack:
+            unit = _LEVERS[lever][0]
+            raise KinetraceError(f"unit {model.id}: {_LEVERS[lever][1]} {x:.6g} {unit} is outside the safe range "
+                                 f"{lo:.6g} to {hi:.6g} {unit}; settings outside the configured safe limits are "
+                                 "never evaluated")
+        margins[lever] = (max(x - lo, 0.0), max(hi - x, 0.0))
+    volume = setting["residence_time"] * setting["feed_flow"]
+    rx = unit_reactions(model, feed_conc=feed_conc, fresh_k_ref=fresh_k_ref, yield_factor=yield_factor)
+    args = (np.array([float(activity)]), np.array([setting["feed_flow"]]), np.array([setting["temperature"]]),
+            np.array([volume]))
+    production = float(np.asarray(rx.production(*args))[0])
+    conversion = float(np.asarray(rx.key_conversion(*args))[0])
+    mm = float(model.molar_masses[model.product_index])
+    target = model.target_rate if target_rate is None else float(target_rate)
+    return SettingPrediction(setting["temperature"], setting["feed_flow"], setting["residence_time"], volume,
+                             conversion, production, production * mm, float(target), ranges, margins)
+
+
+_PARAM = re.compile(r"(k_ref_fitted|activation_energy|K_(?P<ks>[^:]+)|order_(?P<os>[^:]+)):(?P<rid>.+)")
+
+
+def model_from_parameters(model: UnitModel, parameters) -> UnitModel:
+    """The unit with the rate-law parameters a check stored, as that check's forecast and what-if used them.
+
+    When the stored ``parameter_set`` row says the run fitted its parameters (value 1), each
+    ``k_ref_fitted:<reaction>``, ``activation_energy:<reaction>``, ``K_<species>:<reaction>`` and
+    ``order_<species>:<reaction>`` row replaces the configured value (the same replacement as the
+    check's calibration step, :func:`kinetrace.pipeline.calibration_step.fitted_model`); otherwise
+    the configured unit is returned unchanged.
+
+    Parameters
+    ----------
+    model : UnitModel
+        The configured unit.
+    parameters : DataFrame
+        Stored parameter rows of the unit (``name``, ``value``), newest run. [SI]
+
+    Returns
+    -------
+    UnitModel
+    """
+    rows = dict(zip(parameters["name"], parameters["value"])) if len(parameters) else {}
+    if rows.get("parameter_set") != 1.0:
+        return model
+    laws = {rid: dataclasses.replace(law, params={k: (dict(v) if isinstance(v, dict) else v)
+                                                  for k, v in law.params.items()})
+            for rid, law in model.rate_laws.items()}
+    for name, value in rows.items():
+        m = _PARAM.fullmatch(str(name))
+        if m is None or m.group("rid") not in laws or not np.isfinite(value):
+            continue
+        rid = m.group("rid")
+        law = laws[rid]
+        if name.startswith("k_ref_fitted:"):
+            laws[rid] = dataclasses.replace(law, k_ref=float(value), source="fitted")
+        elif name.startswith("activation_energy:"):
+            laws[rid] = dataclasses.replace(law, activation_energy=float(value), source="fitted")
+        elif m.group("ks") and m.group("ks") in (law.params.get("adsorption") or {}):
+            law.params["adsorption"][m.group("ks")] = float(value)
+        elif m.group("os") and m.group("os") in (law.params.get("orders") or {}):
+            law.params["orders"][m.group("os")] = float(value)
+    return dataclasses.replace(model, rate_laws=laws)
