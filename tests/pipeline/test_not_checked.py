@@ -32,4 +32,4 @@ def test_no_unit_readable_is_exit_2(tmp_path):
     result = CliRunner().invoke(app, ["check", "--config", str(cfg)])
     assert result.exit_code == 2, result.output
     assert result.output.startswith("kinetrace: no unit could be checked:"), result.output
-    assert "nearest tag names in the source: 'CB7:ELSEWHERE.R220_" in result.output
+    assert "nearest tag names in the source: 'CB7:ELSEWHERE.R220~" in result.output
