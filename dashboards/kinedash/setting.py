@@ -20,7 +20,7 @@ import pandas as pd
 
 from kinetrace.config.model import UnitModel
 from kinetrace.errors import KinetraceError
-from kinetrace.monitor.whatif import model_from_parameters, volume_limits_from_level
+from kinetrace.monitor.whatif import model_from_parameters, safe_hold_up
 from kinetrace.store import Store
 from kinetrace.units import UnitError, convert
 
@@ -125,11 +125,8 @@ def unit_setting(store: Store, unit: str, path: Path) -> UnitSetting:
     if not (np.isfinite(activity) and activity > 0):
         raise SettingUnavailable(f"no catalyst activity of {unit} in the store")
     feed, _, feed_text = monitoring_feed(recent.iloc[-24:] if len(recent) else recent, model)
-    if model.level_table is not None and unit_cfg.limits.level is not None:
-        vol = volume_limits_from_level(model, unit_cfg.limits.level)
-    elif model.fixed_volume is not None:
-        vol = (model.fixed_volume, model.fixed_volume)
-    else:
+    vol = safe_hold_up(model, unit_cfg.limits.level)
+    if vol is None:      # no safe range and no fixed volume: the present hold-up, held
         v = present["residence_time"] * present["feed_flow"]
         vol = (v, v)
     shown = {lever: model.display_units.get(si, LEVER_SHOWN[lever]) for lever, si in LEVER_SI.items()}

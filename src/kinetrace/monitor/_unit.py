@@ -87,13 +87,17 @@ class UnitReactions:
         return q * (c_p0 + self.yield_factor * (c_p - c_p0))
 
     # ---------------------------------------------------------------- one reaction
-    def _production_single(self, activity, q, t, v):
+    def _single_outlet(self, activity, q, t, v):
+        """The CSTR solution of the one reaction at activity, flow q, temperature t, volume v."""
         law = self.laws[0]
         k = np.asarray(activity, dtype=float) * self.k_fresh(t)
         with np.errstate(divide="ignore", invalid="ignore"):
             tau = np.asarray(v, dtype=float) / q
-        sol = solve_cstr(law.method, tau, self.feed, k, key=self.key, stoichiometry=self._stoich(0),
-                         temperature=t if law.method == "reversible" else None, **law.params)
+        return solve_cstr(law.method, tau, self.feed, k, key=self.key, stoichiometry=self._stoich(0),
+                          temperature=t if law.method == "reversible" else None, **law.params)
+
+    def _production_single(self, activity, q, t, v):
+        sol = self._single_outlet(activity, q, t, v)
         return self._product_rate(q, np.asarray(sol.concentrations[self.product], dtype=float))
 
     # ---------------------------------------------------------------- several reactions
@@ -176,12 +180,7 @@ class UnitReactions:
         t = np.asarray(temperature, dtype=float)
         c0 = self.feed[self.key]
         if self.single:
-            law = self.laws[0]
-            k = np.asarray(activity, dtype=float) * self.k_fresh(t)
-            with np.errstate(divide="ignore", invalid="ignore"):
-                tau = np.asarray(volume, dtype=float) / q
-            sol = solve_cstr(law.method, tau, self.feed, k, key=self.key, stoichiometry=self._stoich(0),
-                             temperature=t if law.method == "reversible" else None, **law.params)
+            sol = self._single_outlet(activity, q, t, volume)
             return 1.0 - np.asarray(sol.concentrations[self.key], dtype=float) / c0
         a, q, t, v = np.broadcast_arrays(*(np.asarray(x, dtype=float) for x in (activity, q, t, volume)))
         out = np.full(a.shape, np.nan)

@@ -62,6 +62,7 @@ __all__ = [
     "safe_ranges",
     "list_levers",
     "production_at",
+    "safe_hold_up",
     "what_if",
     "volume_limits_from_level",
 ]
@@ -209,6 +210,16 @@ def volume_limits_from_level(model: UnitModel, level_limits) -> tuple[float, flo
         raise KinetraceError(f"level limits must satisfy 0 <= low < high <= 100 %, got {level_limits!r}")
     table = model.level_table
     return float(np.interp(lo, table[:, 0], table[:, 1])), float(np.interp(hi, table[:, 0], table[:, 1]))
+
+
+def safe_hold_up(model: UnitModel, level_limits) -> tuple[float, float] | None:
+    """Safe hold-up range [m^3]: from the level limits and table, (V, V) for a fixed volume, else None.
+
+    ``level_limits`` [% of span] as in the configuration, or None (see :func:`volume_limits_from_level`).
+    """
+    if model.level_table is not None and level_limits is not None:
+        return volume_limits_from_level(model, level_limits)
+    return None if model.fixed_volume is None else (model.fixed_volume, model.fixed_volume)
 
 
 def _check_limits(limits, name: str) -> tuple[float, float]:

@@ -216,15 +216,12 @@ DRIFT_ARL0 = 2000.0
 
 def _assess(cfg: PlantConfig, model: UnitModel, series: pd.DataFrame, *, decay_method: str = "auto"):
     """The monitoring stage (catalyst trend, drift alarms, production, forecast, what-if) of one unit."""
-    from ..monitor import assess_unit, volume_limits_from_level
+    from ..monitor import assess_unit
+    from ..monitor.whatif import safe_hold_up
 
     feed, key_feed, feed_text = monitoring_feed(series, model)
     unit_cfg = next(u for u in cfg.units if u.id == model.id)
-    vol_limits = None
-    if model.level_table is not None and unit_cfg.limits.level is not None:
-        vol_limits = volume_limits_from_level(model, unit_cfg.limits.level)
-    elif model.fixed_volume is not None:
-        vol_limits = (model.fixed_volume, model.fixed_volume)
+    vol_limits = safe_hold_up(model, unit_cfg.limits.level)
     try:
         # drift charts run on hourly values: an in-control ARL of 2000 observations is about one
         # false alarm per chart and direction per quarter (370, the textbook value, would be one
