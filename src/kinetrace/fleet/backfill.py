@@ -25,7 +25,8 @@ import pandas as pd
 
 from .chunks import DEFAULT_CHUNK, DEFAULT_CONTEXT, Chunk, chunk_rows, plan_chunks
 from .cluster import DEFAULT_MEMORY_LIMIT, open_client, scheduler_address
-from .output import done_windows, load_chunk, run_fingerprint, save_chunk, write_parquet, write_unit
+from .output import (done_windows, encode_chunk, load_chunk, run_fingerprint, save_chunk, stage_chunks,
+                     write_parquet, write_unit)
 from .progress import FleetProgress
 
 log = logging.getLogger("kinetrace")
@@ -96,6 +97,26 @@ def finish_from_chunks(config_path: str, unit_id: str, parts: list[dict]):
     measured = back_calculate(roles, model)
     quality = sum_quality([p["quality"] for p in parts])
     return finish_unit(cfg, model, roles, measured, quality, analyzers=analyzers)
+
+
+def read_chunk(config_path: str, unit_id: str, start, end, context, *, period=None) -> dict:
+    """:func:`kinetrace.fleet.chunks.chunk_rows` with its cache files already encoded (on the worker)."""
+    payload = chunk_rows(config_path, unit_id, start, end, context, period=period)
+    payload["cache"] = encode_chunk(payload)
+    return payload
+
+
+def finish_and_stage(config_path: str, unit_id: str, parts: list[dict], chunks=None):
+    """:func:`finish_from_chunks`, and its series staged per chunk for the store (on the worker).
+
+    Returns
+    -------
+    (UnitResult, dict or None)
+        The result, and :func:`kinetrace.fleet.output.stage_chunks` of it for ``chunks`` (None
+        when ``chunks`` is None: no store).
+    """
+    result = finish_from_chunks(config_path, unit_id, parts)
+    return result, (None if chunks is None else stage_chunks(result, chunks))
 
 
 def sum_quality(frames: list[pd.DataFrame]) -> pd.DataFrame:
@@ -230,7 +251,7 @@ def _drive(client, config_path, todo, plan, fps, period, context, cache, db, don
                 outcome.chunks_cached += 1
                 progress.chunk(skipped=True)
                 continue
-            f = client.submit(_guarded, chunk_rows, config_path, u, c.start, c.end, context, period=period,
+            f = client.submit(_guarded, read_chunk, config_path, u, c.start, c.end, context, period=period,
                               retries=retries, pure=False, key=f"kt-chunk-{u}-{c.key}-{fps[u][0][7:19]}")
             what[f.key] = ("chunk", u, c)
             futures.append(f)
@@ -240,7 +261,8 @@ def _drive(client, config_path, todo, plan, fps, period, context, cache, db, don
         if u in outcome.failed or len(parts[u]) < len(plan[u]):
             return
         ordered = [parts[u][i] for i in range(len(plan[u]))]
-        f = client.submit(_guarded, finish_from_chunks, config_path, u, ordered, retries=retries, pure=False,
+        to_stage = None if db is None else [c for c in plan[u] if (fps[u][0], c.start, c.end) not in done]
+        f = client.submit(_guarded, finish_and_stage, config_path, u, ordered, to_stage, retries=retries, pure=False,
                           key=f"kt-unit-{u}-{fps[u][1][7:19]}")
         what[f.key] = ("unit", u, None)
         ac.add(f)
@@ -257,6 +279,7 @@ def _drive(client, config_path, todo, plan, fps, period, context, cache, db, don
         if kind == "chunk":
             if status == "ok":
                 save_chunk(cache, fps[u][0], u, c, value)
+                value.pop("cache", None)            # the finishing task needs the rows, not their files
                 parts[u][c.index] = value
                 outcome.chunks_run += 1
             elif u not in outcome.failed:
@@ -272,10 +295,11 @@ def _drive(client, config_path, todo, plan, fps, period, context, cache, db, don
             log.warning("unit %s failed: %s", u, value)
             progress.unit(failed=True)
             continue
+        value, staged = value
         quality = {i: p["quality"] for i, p in parts[u].items()}
         if db is not None:
             outcome.transactions += write_unit(db, value, plan[u], quality, period=period, chunk_fp=fps[u][0],
-                                               unit_fp=fps[u][1], done=done)
+                                               unit_fp=fps[u][1], done=done, staged=staged)
         if parquet is not None:
             write_parquet(parquet, u, value.series)
         outcome.units_done.append(u)

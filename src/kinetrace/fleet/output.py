@@ -61,7 +61,31 @@ def done_windows(store) -> set[tuple[str, pd.Timestamp, pd.Timestamp]]:
             for f, a, b in zip(runs["config_fingerprint"], runs["window_start"], runs["window_end"])}
 
 
-def write_unit(store, result, chunks, quality: dict, *, period, chunk_fp: str, unit_fp: str, done: set) -> int:
+def stage_chunks(result, chunks) -> dict:
+    """Each chunk's slice of a unit's time series staged for the store (runs on the worker).
+
+    Parameters
+    ----------
+    result : kinetrace.pipeline.daily.UnitResult
+    chunks : list of Chunk
+
+    Returns
+    -------
+    dict
+        Chunk index -> :class:`kinetrace.store.StagedSeries` of the rows in ``[start, end)``, as
+        :func:`kinetrace.pipeline.daily.write_unit_rows` would write them; the writer only inserts.
+    """
+    from ..pipeline.daily import _series_for_store
+    from ..store import stage_series
+
+    frame, units = _series_for_store(result.series)
+    uid = result.model.id
+    return {c.index: stage_series(frame.loc[(frame.index >= c.start) & (frame.index < c.end)], units, unit=uid)
+            for c in chunks}
+
+
+def write_unit(store, result, chunks, quality: dict, *, period, chunk_fp: str, unit_fp: str, done: set,
+               staged: dict | None = None) -> int:
     """Write one unit's backfill results to the store; returns the number of transactions committed.
 
     Parameters
@@ -78,6 +102,9 @@ def write_unit(store, result, chunks, quality: dict, *, period, chunk_fp: str, u
         Run fingerprints of the chunk transactions and of the unit's findings.
     done : set
         :func:`done_windows` of the store; work found there is skipped.
+    staged : dict, optional
+        :func:`stage_chunks` of the result (computed on the worker): the chunk transactions insert
+        these instead of laying the series out here.
     """
     from ..pipeline.daily import write_unit_findings, write_unit_rows
 
@@ -90,7 +117,8 @@ def write_unit(store, result, chunks, quality: dict, *, period, chunk_fp: str, u
                                    quality=quality[c.index])
         with store.write_run((c.start, c.end), config_fingerprint=chunk_fp) as run:
             if len(part.series):
-                write_unit_rows(run, part, period=(c.start, c.end))
+                write_unit_rows(run, part, period=(c.start, c.end),
+                                staged=None if staged is None else staged[c.index])
         n += 1
     with store.write_run(period, config_fingerprint=unit_fp) as run:
         write_unit_findings(run, result, period)
@@ -135,16 +163,31 @@ def cache_paths(folder, fp: str, unit: str, chunk) -> tuple[Path, Path]:
     return base / f"{chunk.key}.rows.parquet", base / f"{chunk.key}.quality.parquet"
 
 
-def save_chunk(folder, fp: str, unit: str, chunk, payload: dict) -> None:
-    """Cache a chunk's rows (the quality file is written last: its presence marks the pair whole)."""
-    rows_path, q_path = cache_paths(folder, fp, unit, chunk)
+def encode_chunk(payload: dict) -> tuple[bytes, bytes]:
+    """A chunk's rows and quality counts as the two Parquet files of the cache (on the worker)."""
     rows = pd.concat([payload["values"], payload["valid"].add_prefix("valid:"),
                       payload["volume"].rename("__volume__")], axis=1)
     rows.columns = [str(c) for c in rows.columns]
-    _atomic_parquet(rows, rows_path)
     q = payload["quality"].copy()
     q.columns = [str(c) for c in q.columns]
-    _atomic_parquet(q, q_path)
+    return rows.to_parquet(), q.to_parquet()
+
+
+def save_chunk(folder, fp: str, unit: str, chunk, payload: dict) -> None:
+    """Cache a chunk's rows (the quality file is written last: its presence marks the pair whole).
+
+    ``payload["cache"]``, where present, holds :func:`encode_chunk` of it, made on the worker."""
+    rows_path, q_path = cache_paths(folder, fp, unit, chunk)
+    rows_bytes, q_bytes = payload["cache"] if "cache" in payload else encode_chunk(payload)
+    _atomic_bytes(rows_bytes, rows_path)
+    _atomic_bytes(q_bytes, q_path)
+
+
+def _atomic_bytes(data: bytes, path: Path) -> None:
+    path.parent.mkdir(parents=True, exist_ok=True)
+    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
+    tmp.write_bytes(data)
+    os.replace(tmp, path)
 
 
 def load_chunk(folder, fp: str, unit: str, chunk) -> dict | None:

@@ -45,6 +45,7 @@ from ..redact import scrub
 from .collect import Collector
 from .files import refuse_special_file
 from .sqlite_arrow import RangeReader, ReaderPool
+from .sqlite_bounds import rowid_bounds
 from .timestamps import NAT
 
 #: Stream PostgreSQL (psycopg 3) reads with COPY ... TO STDOUT; False uses the generic streamed SELECT.
@@ -344,10 +345,13 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     if until is not None:
         window.append(f"{{p}}{ts} < ?")
         wargs.append(until)
+    odd = None
     if window:
         other = f" OR {{p}}{ts} IS NULL OR NOT {{p}}{ts} LIKE '{_ISO_SHAPE}'" if window_kind(source) == "iso_text" else ""
         where.append(f"({' AND '.join(window)}{other})")
         args += wargs
+        if other:
+            odd = f"({ts} IS NULL OR NOT {ts} LIKE '{_ISO_SHAPE}')"
     # in the chunk query a unary + keeps SQLite on the rowid range instead of a (tag, time) index
     cond_rowid = " AND ".join(where).format(p="+")
     # SQLite reads an unknown "double-quoted" name as a string literal: check the columns first
@@ -369,36 +373,23 @@ def _sqlite_bulk(conn, source: Source, tags: list[str], good, since_ns: int, unt
     binary = ReaderPool(database, step, READ_THREADS) if USE_SQLITE_ARROW and RangeReader.available(database) \
         else None
     try:
-        return _sqlite_ranges(raw, binary, source, tags, where, args, wargs,
+        return _sqlite_ranges(raw, binary, source, tags, args, window, wargs, odd, database,
                               tbl=tbl, cond_rowid=cond_rowid, step=step, collector=collector, counts=counts)
     finally:
         if binary is not None:
             binary.close()
 
 
-def _sqlite_ranges(raw, binary, source: Source, tags, where, args, wargs, *, tbl, cond_rowid,
+def _sqlite_ranges(raw, binary, source: Source, tags, args, window, wargs, odd, database, *, tbl, cond_rowid,
                    step, collector, counts) -> bool:
     """The rowid ranges of :func:`_sqlite_bulk` read into ``collector`` (``binary``: a
     :class:`ReaderPool`, or None for the text path only)."""
     c = source.columns
     q = lambda name: '"' + name.replace('"', '""') + '"'   # noqa: E731  (SQL identifier quoting)
     ts, tg, val = q(c.timestamp), q(c.tag), q(c.value)
-    bounds = None
-    if binary is not None and binary.threads > 1 and len(tags) > 1:
-        # the rowid bounds of the tags in groups, side by side (each an index search of its tags)
-        queries = []
-        for g in (tags[i::binary.threads] for i in range(binary.threads)):
-            cond_g = " AND ".join([f"{tg} IN ({','.join('?' * len(g))})"] + where[1:]).format(p="")
-            queries.append((f"SELECT min(rowid), max(rowid) FROM {tbl} WHERE {cond_g}", list(g) + wargs))
-        try:
-            bounds = binary.bounds(queries)
-        except Exception:  # noqa: BLE001 - any driver problem: the one query below on this connection
-            bounds = None
-    if bounds is not None:
-        lo, hi = bounds
-    else:
-        cond = " AND ".join(where).format(p="")
-        lo, hi = raw.execute(f"SELECT min(rowid), max(rowid) FROM {tbl} WHERE {cond}", args).fetchone()
+    # the window's rows by index range searches; the odd-stamped rows' bounds remembered per file state
+    lo, hi = rowid_bounds(raw, binary, tbl=tbl, tags=list(tags), tag_col=tg, window=[w.format(p="") for w in window],
+                          window_args=list(wargs), odd=odd, database=database)
     counts.setdefault("rows", 0)
     if lo is None:
         return True

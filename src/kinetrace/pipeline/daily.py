@@ -337,7 +337,7 @@ def write_results(store, results: list[UnitResult], *, window, fingerprint: str)
         return run.run_id
 
 
-def write_unit_rows(run, res: UnitResult, *, period=None) -> None:
+def write_unit_rows(run, res: UnitResult, *, period=None, staged=None) -> None:
     """Write a unit's time series and data-quality counts into an open run (``period``: of the counts).
 
     Parameters
@@ -347,10 +347,16 @@ def write_unit_rows(run, res: UnitResult, *, period=None) -> None:
         Its ``series`` rows must lie in the run's window. [SI]
     period : (Timestamp, Timestamp), optional
         Period the quality counts cover; default the run window. [UTC]
+    staged : kinetrace.store.StagedSeries, optional
+        ``res.series`` already staged (:func:`kinetrace.store.stage_series` of
+        :func:`_series_for_store`), e.g. by a backfill worker.
     """
     uid = res.model.id
-    frame, units = _series_for_store(res.series)
-    run.write_series(uid, frame, units=units)
+    if staged is not None:
+        run.write_series(uid, staged)
+    else:
+        frame, units = _series_for_store(res.series)
+        run.write_series(uid, frame, units=units)
     q = res.quality.select_dtypes("number")
     if period is None:
         run.write_quality(uid, q)

@@ -121,9 +121,10 @@ References
 from .core import SUPPORTED_DIALECTS, Store, fingerprint, open_store
 from .schema import ALARM_STATES, RUN_STATES, SCHEMA_VERSION, StoreError
 from .records import DAILY_COLUMNS, GAP_PARTS
+from .staging import StagedSeries, stage_series
 from .writer import RunWriter
 
 __all__ = [
     "ALARM_STATES", "DAILY_COLUMNS", "GAP_PARTS", "RUN_STATES", "SCHEMA_VERSION", "SUPPORTED_DIALECTS",
-    "RunWriter", "Store", "StoreError", "fingerprint", "open_store",
+    "RunWriter", "StagedSeries", "Store", "StoreError", "fingerprint", "open_store", "stage_series",
 ]

@@ -17,6 +17,7 @@ from sqlalchemy.exc import NoSuchModuleError
 from ..redact import redact_url, scrub
 from . import reader
 from .schema import RESULT_TABLES, RUN_STATES, SCHEMA_VERSION, StoreError, metadata, runs, store_meta, to_utc
+from .staging import STAGE_SCHEMA
 from .writer import RunWriter
 
 SUPPORTED_DIALECTS = ("sqlite", "postgresql")
@@ -65,6 +66,8 @@ def _sqlite_connect(dbapi_conn, _record) -> None:
     cur.execute("PRAGMA foreign_keys = ON")
     cur.execute("PRAGMA busy_timeout = 30000")
     cur.execute("PRAGMA journal_mode = WAL")
+    # where a staged series is loaded inside a run's transaction (ATTACH cannot run inside one)
+    cur.execute(f"ATTACH DATABASE ':memory:' AS {STAGE_SCHEMA}")
     cur.close()
 
 

@@ -14,6 +14,7 @@ import pandas as pd
 from sqlalchemy import Connection, and_, delete, insert, select, update
 
 from .bulk import insert_series
+from .staging import StagedSeries, insert_staged, series_arrays
 from .records import (
     ALARM_COLUMNS,
     DAILY_COLUMNS,
@@ -93,11 +94,13 @@ class RunWriter:
         ----------
         unit : str
             Unit id, e.g. ``"R-210"``.
-        frame : DataFrame
+        frame : DataFrame or StagedSeries
             Tz-aware DatetimeIndex inside the run window, unique; numeric or boolean
             columns named after the variables (booleans are stored as 0/1). NaN is
             stored as NULL. Text columns are refused: encode them as numbers or keep
-            them out of the series. [SI unit of each variable]
+            them out of the series. Or the same frame checked and laid out by
+            :func:`kinetrace.store.stage_series` in another process (its units with it),
+            which leaves this writer the insert alone. [SI unit of each variable]
         units : dict, optional
             Unit of measure of each variable, e.g. ``{"conversion": "-"}``; kept in
             ``series_keys``. A variable's unit cannot change once stored.
@@ -109,50 +112,36 @@ class RunWriter:
         """
         unit = self._check_unit(unit)
         what = f"series of unit {unit}"
-        if not isinstance(frame, pd.DataFrame):
-            raise StoreError(f"{what}: expected a pandas DataFrame, got {type(frame).__name__}")
-        if not isinstance(frame.index, pd.DatetimeIndex):
-            raise StoreError(f"{what}: index must be a DatetimeIndex, got {type(frame.index).__name__}")
-        if frame.index.tz is None:
-            raise StoreError(f"{what}: index is naive; give a time zone (the store keeps UTC)")
-        if frame.index.hasnans:
-            raise StoreError(f"{what}: index holds {int(frame.index.isna().sum())} missing time stamp(s)")
-        dup = frame.index.duplicated()
-        if dup.any():
-            raise StoreError(f"{what}: duplicate time stamp {frame.index[dup][0]} "
-                             f"({int(dup.sum())} duplicate(s))")
-        units = dict(units or {})
-        bad = [c for c in frame.columns if not isinstance(c, str) or not c]
-        if bad:
-            raise StoreError(f"{what}: variable names must be non-empty strings, got {bad}")
-        values = {}
-        for c in frame.columns:
-            col = frame[c]
-            if pd.api.types.is_bool_dtype(col.dtype):
-                values[c] = col.to_numpy(dtype=float)
-            elif pd.api.types.is_numeric_dtype(col.dtype):
-                values[c] = col.to_numpy(dtype=float, na_value=np.nan)
-            else:
-                raise StoreError(f"{what}: column {c!r} has dtype {col.dtype}; only numeric or boolean "
-                                 "columns can be stored as a series")
-        extra = set(units) - set(frame.columns)
-        if extra:
-            raise StoreError(f"{what}: units given for variables not in the frame: {sorted(extra)}")
-        if len(frame):
-            self._in_window(frame.index.min().tz_convert("UTC"), what)
-            self._in_window(frame.index.max().tz_convert("UTC"), what)
-        key_ids = self._series_keys(unit, list(frame.columns), units)
+        if isinstance(frame, StagedSeries):
+            staged = frame
+            if units:
+                raise StoreError(f"{what}: a staged series carries its units; give them to stage_series")
+            units, variables = dict(staged.units), list(staged.variables)
+            first, last = staged.first, staged.last
+        else:
+            staged = None
+            values, units = series_arrays(what, frame, units)
+            variables = list(frame.columns)
+            first = frame.index.min().tz_convert("UTC") if len(frame) else None
+            last = frame.index.max().tz_convert("UTC") if len(frame) else None
+        if first is not None:
+            self._in_window(first, what)
+            self._in_window(last, what)
+        key_ids = self._series_keys(unit, variables, units)
         cond = and_(series_values.c.ts >= self.window[0], series_values.c.ts < self.window[1])
         if self._first_time("series", unit):
             unit_keys = select(series_keys.c.key_id).where(series_keys.c.unit_id == unit)
             self._conn.execute(delete(series_values).where(series_values.c.key_id.in_(unit_keys), cond))
         else:
             self._conn.execute(delete(series_values).where(series_values.c.key_id.in_(key_ids), cond))
-        n = len(frame)
-        ts_us = np.tile(epoch_us(frame.index), len(key_ids))
-        keys = np.repeat(np.asarray(key_ids, dtype=np.int64), n)
-        vals = np.concatenate([values[c] for c in frame.columns]) if key_ids else np.array([], float)
-        written = insert_series(self._conn, keys, ts_us, vals, self.run_id)
+        if staged is not None:
+            written = insert_staged(self._conn, staged, key_ids, self.run_id)
+        else:
+            n = len(frame)
+            ts_us = np.tile(epoch_us(frame.index), len(key_ids))
+            keys = np.repeat(np.asarray(key_ids, dtype=np.int64), n)
+            vals = np.concatenate([values[c] for c in frame.columns]) if key_ids else np.array([], float)
+            written = insert_series(self._conn, keys, ts_us, vals, self.run_id)
         self._count("series_values", written)
         return written
 
