@@ -12,6 +12,8 @@ import urllib.request
 from pathlib import Path
 
 ENTRY = Path(__file__).resolve().parents[1] / "app.py"
+#: Starts Streamlit with the pages' modules imported first (see dashboards/launch.py).
+LAUNCH = ENTRY.with_name("launch.py")
 #: Accent colour of widgets (the "measured" teal of :data:`kinedash.ui.COLOURS`).
 PRIMARY = "#1f6f8b"
 
@@ -24,12 +26,13 @@ def free_port(host: str = "127.0.0.1") -> int:
 
 
 def streamlit_command(port: int, host: str = "127.0.0.1", python: str | None = None) -> list[str]:
-    """``streamlit run`` of the entry point, headless, bound to ``host``, no telemetry, no file watcher.
+    """``streamlit run`` of the entry point (through :data:`LAUNCH`), headless, bound to ``host``, no
+    telemetry, no file watcher.
 
-    >>> streamlit_command(8601)[5:9]
+    >>> streamlit_command(8601)[4:8]
     ['--server.address', '127.0.0.1', '--server.port', '8601']
     """
-    return [python or sys.executable, "-m", "streamlit", "run", str(ENTRY),
+    return [python or sys.executable, str(LAUNCH), "run", str(ENTRY),
             "--server.address", host, "--server.port", str(port), "--server.headless", "true",
             "--browser.gatherUsageStats", "false", "--server.fileWatcherType", "none",
             "--client.toolbarMode", "minimal", "--theme.primaryColor", PRIMARY]

@@ -473,7 +473,8 @@ def dashboard(config: Path = typer.Option(DEMO_CONFIG, "--config", "-c",
     env = dict(os.environ, KINETRACE_CONFIG=str(Path(config).resolve()))
     if store_url:
         env["KINETRACE_STORE_URL"] = store_url
-    cmd = [sys.executable, "-m", "streamlit", "run", str(ROOT / "dashboards" / "app.py"),
+    # dashboards/launch.py imports the pages' modules before the server answers, then runs Streamlit
+    cmd = [sys.executable, str(ROOT / "dashboards" / "launch.py"), "run", str(ROOT / "dashboards" / "app.py"),
            "--server.address", "127.0.0.1", "--server.port", str(port), "--server.headless", "true",
            "--browser.gatherUsageStats", "false", "--client.toolbarMode", "minimal",
            "--theme.primaryColor", "#1f6f8b"]
