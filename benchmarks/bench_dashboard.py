@@ -53,9 +53,6 @@ def build_store() -> str:
     if STORE.exists():
         try:
             if connect(url).watermark("R-210") is not None:
-                from kinetrace.store import open_store
-
-                open_store(url).close()       # a store built by an older kinetrace is upgraded (hourly summary)
                 return url
         except Exception:  # noqa: BLE001 - a half-written file from an interrupted build is rebuilt
             pass

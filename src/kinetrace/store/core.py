@@ -9,7 +9,7 @@ from pathlib import Path
 from typing import Iterator
 
 import pandas as pd
-from sqlalchemy import Engine, create_engine, event, func, insert, select, text, update
+from sqlalchemy import Engine, create_engine, event, insert, select, text, update
 from sqlalchemy.exc import ArgumentError, DatabaseError
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import NoSuchModuleError
@@ -174,18 +174,6 @@ def _upgrade_from_2(conn) -> None:
     for name, kind in (("rate", "DOUBLE PRECISION"), ("last_check", stamp)):
         if name not in have:
             conn.execute(text(f"ALTER TABLE alarms ADD COLUMN {name} {kind}"))
-    conn.execute(update(store_meta).where(store_meta.c.key == "schema_version").values(value="3"))
-
-
-def _upgrade_from_3(conn) -> None:
-    """Version 3 -> 4: the hourly summary ``series_hourly`` (created empty by ``create_all``) is
-    filled from every stored row, as the writer keeps it from now on."""
-    from .rollup import refresh_hours
-    from .schema import series_keys, series_values
-
-    lo, hi = conn.execute(select(func.min(series_values.c.ts), func.max(series_values.c.ts))).one()
-    if lo is not None:
-        refresh_hours(conn, select(series_keys.c.key_id), lo, hi + pd.Timedelta(microseconds=1))
     conn.execute(update(store_meta).where(store_meta.c.key == "schema_version").values(value=str(SCHEMA_VERSION)))
 
 
@@ -220,17 +208,13 @@ class Store:
                     have = "2"
                 if have == "2":
                     _upgrade_from_2(conn)
-                    have = "3"
-                if have == "3":
-                    _upgrade_from_3(conn)
             _upgrade_run_states(conn)
 
     def check_version(self) -> None:
         """Refuse a store written with another table layout."""
         with self.engine.connect() as conn:
             have = conn.execute(select(store_meta.c.value).where(store_meta.c.key == "schema_version")).scalar()
-        # version 3 lacks only the hourly summary, which readers do without (opened to write, it is upgraded)
-        if have is not None and have not in (str(SCHEMA_VERSION), "3"):
+        if have is not None and have != str(SCHEMA_VERSION):
             raise StoreError(f"store {self!r} has schema version {have}; this kinetrace reads version "
                              f"{SCHEMA_VERSION}")
 

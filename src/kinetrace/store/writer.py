@@ -14,7 +14,6 @@ import pandas as pd
 from sqlalchemy import Connection, and_, delete, insert, select, update
 
 from .bulk import insert_series
-from .rollup import refresh_hours
 from .staging import StagedSeries, insert_staged, series_arrays
 from .records import (
     ALARM_COLUMNS,
@@ -131,10 +130,10 @@ class RunWriter:
         key_ids = self._series_keys(unit, variables, units)
         cond = and_(series_values.c.ts >= self.window[0], series_values.c.ts < self.window[1])
         if self._first_time("series", unit):
-            changed = select(series_keys.c.key_id).where(series_keys.c.unit_id == unit)
+            unit_keys = select(series_keys.c.key_id).where(series_keys.c.unit_id == unit)
+            self._conn.execute(delete(series_values).where(series_values.c.key_id.in_(unit_keys), cond))
         else:
-            changed = list(key_ids)
-        self._conn.execute(delete(series_values).where(series_values.c.key_id.in_(changed), cond))
+            self._conn.execute(delete(series_values).where(series_values.c.key_id.in_(key_ids), cond))
         if staged is not None:
             written = insert_staged(self._conn, staged, key_ids, self.run_id)
         else:
@@ -143,7 +142,6 @@ class RunWriter:
             keys = np.repeat(np.asarray(key_ids, dtype=np.int64), n)
             vals = np.concatenate([values[c] for c in frame.columns]) if key_ids else np.array([], float)
             written = insert_series(self._conn, keys, ts_us, vals, self.run_id)
-        refresh_hours(self._conn, changed, self.window[0], self.window[1])     # the hourly summary follows
         self._count("series_values", written)
         return written
 
