@@ -21,7 +21,8 @@ def test_dashboard_command(monkeypatch):
                                    "--store-url", "sqlite:////srv/kt/results.sqlite", "--port", "8611"])
     assert res.exit_code == 0, res.output
     cmd = seen["cmd"]
-    assert cmd[1:4] == ["-m", "streamlit", "run"] and cmd[4] == str(APP)
+    # Streamlit's own "run", through the launcher that imports the pages' modules first
+    assert cmd[1] == str(APP.with_name("launch.py")) and cmd[2] == "run" and cmd[3] == str(APP)
     assert cmd[cmd.index("--server.address") + 1] == "127.0.0.1"
     assert cmd[cmd.index("--server.port") + 1] == "8611"
     assert cmd[cmd.index("--server.headless") + 1] == "true"
