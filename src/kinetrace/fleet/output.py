@@ -151,10 +151,7 @@ def write_parquet(folder, unit: str, series: pd.DataFrame) -> list[Path]:
 
 
 def _atomic_parquet(frame: pd.DataFrame, path: Path) -> None:
-    path.parent.mkdir(parents=True, exist_ok=True)
-    tmp = path.with_name(f".{path.name}.{os.getpid()}.tmp")
-    frame.to_parquet(tmp)
-    os.replace(tmp, path)
+    _atomic_bytes(frame.to_parquet(), path)
 
 
 def cache_paths(folder, fp: str, unit: str, chunk) -> tuple[Path, Path]:
