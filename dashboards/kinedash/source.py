@@ -28,7 +28,8 @@ from sqlalchemy.engine import make_url
 from kinetrace.errors import KinetraceError
 from kinetrace.redact import redact_url, scrub
 from kinetrace.store import Store, StoreError, open_store
-from kinetrace.store.bulk import ts_as_epoch_us
+from kinetrace.store.bulk import ts_as_epoch_us, ts_range_condition
+from kinetrace.store.rollup import HOUR_US, ceil_hour, floor_hour, has_hours, hour_buckets, summarised
 from kinetrace.store.schema import series_keys, series_values
 
 from .downsample import thin
@@ -41,7 +42,7 @@ RAW_LIMIT = 20_000
 #: Points per series on a chart (LTTB output, or time buckets). [-]
 CHART_POINTS = 1000
 #: Ways :func:`bucket_stats` can read the buckets. [-]
-BUCKET_READS = ("ranges", "group_by")
+BUCKET_READS = ("hours", "ranges", "group_by")
 
 
 class StoreUnavailable(KinetraceError):
@@ -146,7 +147,8 @@ def estimated_rows(store: Store, key_id: int, start, end) -> int:
     return int((_us(end) - int(got[0])) // step) + 1
 
 
-def bucket_stats(store: Store, key_id: int, start, end, n_buckets: int, how: str | None = None) -> pd.DataFrame:
+def bucket_stats(store: Store, key_id: int, start, end, n_buckets: int, how: str | None = None,
+                 summarised: bool | None = None) -> pd.DataFrame:
     """Per time bucket of ``[start, end)``: first time, min, max, sum and count of one series.
 
     Parameters
@@ -157,37 +159,68 @@ def bucket_stats(store: Store, key_id: int, start, end, n_buckets: int, how: str
     start, end : Timestamp
         Range, tz-aware. [UTC]
     n_buckets : int
-        Equal-width buckets. [-]
-    how : {"ranges", "group_by"}, optional
-        ``"ranges"``: one indexed range query per bucket (default on SQLite);
-        ``"group_by"``: one ``GROUP BY`` query (default on PostgreSQL). Same result.
+        Equal-width buckets (at most: buckets of 2 h and more are widened to whole hours and start
+        at the hour holding ``start``, so those of every series of a chart align, whichever way
+        each is read). [-]
+    how : {"hours", "ranges", "group_by"}, optional
+        ``"hours"``: whole hours from the store's hourly summary, the part-hours at the two ends
+        from the rows (default for buckets of whole hours of a summarised series); ``"ranges"``:
+        one indexed range query per bucket (default otherwise on SQLite); ``"group_by"``: one
+        ``GROUP BY`` query (otherwise on PostgreSQL). Each gives the min, max, sum and count of
+        the rows of its buckets.
+    summarised : bool, optional
+        Whether the store keeps the series' hourly summary; looked up when not given.
 
     Returns
     -------
     DataFrame
-        Index: bucket start (UTC); columns ``t_first`` (UTC), ``lo``, ``hi``, ``total``,
-        ``count``; buckets without non-NULL values are absent. [unit of the series]
+        Index: bucket start (UTC; the first bucket starts at ``start``); columns ``t_first``
+        (UTC), ``lo``, ``hi``, ``total``, ``count``; buckets without non-NULL values are
+        absent. [unit of the series]
     """
-    if how is None:
-        how = "ranges" if store.dialect == "sqlite" else "group_by"
-    if how not in BUCKET_READS:
-        raise ValueError(f"bucket read {how!r} is not one of {list(BUCKET_READS)}")
     s_us, e_us = _us(start), _us(end)
     width = max((e_us - s_us + n_buckets - 1) // n_buckets, 1)
+    origin = s_us
+    if width >= 2 * HOUR_US:
+        width, origin = ceil_hour(width), floor_hour(s_us)
+    if how is None:
+        if width >= 2 * HOUR_US and summarised is None:
+            summarised = bool(summarised_keys(store, [key_id]))
+        if width >= 2 * HOUR_US and summarised:
+            how = "hours"
+        else:
+            how = "ranges" if store.dialect == "sqlite" else "group_by"
+    if how not in BUCKET_READS:
+        raise ValueError(f"bucket read {how!r} is not one of {list(BUCKET_READS)}")
     with store.engine.connect() as conn:
-        if how == "ranges":
+        if how == "hours":
+            if width < 2 * HOUR_US:
+                width, origin = ceil_hour(width), floor_hour(s_us)
+            rows = hour_buckets(conn, key_id, s_us, e_us, width)
+            a, z = ceil_hour(s_us), floor_hour(e_us)
+            ends = [(s_us, min(a, e_us))] if z > a else [(s_us, e_us)]
+            if z > a and z < e_us:
+                ends.append((z, e_us))
+            for lo, hi in ends:            # part-hours at the ends (or the whole range) from the rows
+                if hi <= lo:
+                    continue
+                r = _raw_stats(conn, key_id, lo, hi)
+                if r[4]:
+                    rows.append(((lo - origin) // width, *r))
+            rows = _merge_buckets(rows)
+        elif how == "ranges":
             # one index range scan per bucket: SQLite would sort a GROUP BY on an expression
             # in a temporary B-tree, about 8x slower than these scans
             raw = conn.connection.driver_connection
             sql = ("SELECT ?, min(ts), min(value), max(value), sum(value), count(value) FROM series_values "
                    "WHERE key_id = ? AND ts >= ? AND ts < ? AND value IS NOT NULL")
-            nb = (e_us - s_us + width - 1) // width
-            rows = [raw.execute(sql, (i, key_id, s_us + i * width, min(s_us + (i + 1) * width, e_us))).fetchone()
-                    for i in range(nb)]
+            nb = (e_us - origin + width - 1) // width
+            rows = [raw.execute(sql, (i, key_id, max(origin + i * width, s_us),
+                                      min(origin + (i + 1) * width, e_us))).fetchone() for i in range(nb)]
             rows = [r for r in rows if r[5]]
         else:
             ts = ts_as_epoch_us(conn)
-            b = ((ts - s_us) // width).label("b")
+            b = ((ts - origin) // width).label("b")
             v = series_values.c.value
             stmt = (select(b, func.min(ts), func.min(v), func.max(v), func.sum(v), func.count(v))
                     .where(series_values.c.key_id == key_id, ts >= s_us, ts < e_us, v.is_not(None))
@@ -195,11 +228,50 @@ def bucket_stats(store: Store, key_id: int, start, end, n_buckets: int, how: str
             rows = conn.execute(stmt).all()
     cols = ["b", "t_first", "lo", "hi", "total", "count"]
     raw = pd.DataFrame(rows, columns=cols) if rows else pd.DataFrame({c: [] for c in cols})
-    idx = pd.to_datetime(s_us + raw["b"].to_numpy(dtype=np.int64) * width, unit="us", utc=True)
+    idx = np.maximum(origin + raw["b"].to_numpy(dtype=np.int64) * width, s_us)
+    idx = pd.to_datetime(idx, unit="us", utc=True)
     return pd.DataFrame({"t_first": pd.to_datetime(raw["t_first"].to_numpy(dtype=np.int64), unit="us", utc=True),
                          "lo": raw["lo"].to_numpy(dtype=float), "hi": raw["hi"].to_numpy(dtype=float),
                          "total": raw["total"].to_numpy(dtype=float),
                          "count": raw["count"].to_numpy(dtype=np.int64)}, index=pd.DatetimeIndex(idx, name="ts"))
+
+
+def summarised_keys(store: Store, key_ids) -> set[int]:
+    """Those of ``key_ids`` whose hourly summary the store keeps (none in a store of version 3)."""
+    if not _has_hours(store):
+        return set()
+    with store.engine.connect() as conn:
+        return set(summarised(conn, key_ids))
+
+
+def _has_hours(store: Store) -> bool:
+    """Whether the store keeps hourly summaries (remembered on the store object)."""
+    if not hasattr(store, "_kt_has_hours"):
+        with store.engine.connect() as conn:
+            store._kt_has_hours = has_hours(conn)
+    return store._kt_has_hours
+
+
+def _raw_stats(conn, key_id: int, lo_us: int, hi_us: int) -> tuple:
+    """(first time [us], min, max, sum, count) of a series' non-NULL rows in ``[lo, hi)``."""
+    ts = ts_as_epoch_us(conn)
+    v = series_values.c.value
+    r = conn.execute(select(func.min(ts), func.min(v), func.max(v), func.sum(v), func.count(v))
+                     .where(series_values.c.key_id == key_id, ts_range_condition(conn, lo_us, hi_us),
+                            v.is_not(None))).one()
+    return (None if r[0] is None else int(r[0]), r[1], r[2], r[3], int(r[4] or 0))
+
+
+def _merge_buckets(rows: list[tuple]) -> list[tuple]:
+    """Rows ``(b, t_first, lo, hi, total, n)`` of the same bucket combined, in bucket order."""
+    out: dict = {}
+    for b, t, lo, hi, tot, n in rows:
+        if b in out:
+            t0, lo0, hi0, tot0, n0 = out[b]
+            out[b] = (min(t0, t), min(lo0, lo), max(hi0, hi), tot0 + tot, n0 + n)
+        else:
+            out[b] = (t, lo, hi, tot, n)
+    return [(b, *out[b]) for b in sorted(out)]
 
 
 def chart_series(store: Store, unit: str, variables, start, end, *, points: int = CHART_POINTS,
@@ -245,8 +317,10 @@ def chart_series(store: Store, unit: str, variables, start, end, *, points: int 
     bucketed = estimated_rows(store, probe, start, end) > RAW_LIMIT
     out["bucketed"] = bucketed
     if bucketed:
+        fine = summarised_keys(store, keys.values())
         with ThreadPoolExecutor(max_workers=min(4, len(keys))) as pool:
-            got = dict(zip(keys, pool.map(lambda k: bucket_stats(store, k, start, end, points), keys.values())))
+            got = dict(zip(keys, pool.map(lambda k: bucket_stats(store, k, start, end, points, summarised=k in fine),
+                                          keys.values())))
         steady_buckets = got["steady"].index[got["steady"]["lo"] >= 1.0] if masked else None
         for v, b in got.items():
             if v in masked:

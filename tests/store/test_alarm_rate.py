@@ -49,4 +49,4 @@ def test_version_2_store_is_upgraded(sqlite_url):
     store.close()
     with create_engine(sqlite_url).connect() as conn:
         assert conn.execute(text("SELECT value FROM store_meta WHERE key = 'schema_version'")).scalar() \
-            == str(SCHEMA_VERSION) == "3"
+            == str(SCHEMA_VERSION) == "4"

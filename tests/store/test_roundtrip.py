@@ -188,7 +188,7 @@ def test_version_1_store_is_upgraded(pg_db_url):
                                  "WHERE table_name = 'parameters' AND column_name = 'method'")).scalar()
         version = conn.execute(text("SELECT value FROM store_meta WHERE key = 'schema_version'")).scalar()
     eng.dispose()
-    assert (kind, version) == ("text", "3")
+    assert (kind, version) == ("text", "4")
     store.close()
 
 

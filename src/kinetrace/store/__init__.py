@@ -69,6 +69,10 @@ forecasts           (unit_id, as_of); activity_now, activity_needed,    as_of in
 whatif              (unit_id, as_of, lever); current_value,             as_of in (start, end]
                     proposed_value, safe_low, safe_high,
                     unit_of_measure, restores_target, note, run_id
+series_summarised   key_id                                              never (series first written with
+                                                                        ten rows per hour or more)
+series_hourly       (key_id, hour); t_first, lo, hi, total, n           hours meeting [start, end) of the
+                    (of the hour's non-NULL values)                     summarised series, from the rows
 watermarks          unit_id; last_ts, run_id                            moves forward only
 store_meta          key; value (schema_version)                         never
 =================== ================================================== ===================================
@@ -86,6 +90,8 @@ The same table in markdown:
 | `data_quality` | `unit_id`, `tag`, `period_start`, `measure` | `period_end`, `count`, `run_id` | `period_start` in [start, end) |
 | `forecasts` | `unit_id`, `as_of` | `activity_now`, `activity_needed`, `miss_earliest`, `miss_expected`, `miss_latest`, `statement`, `run_id` | `as_of` in (start, end] |
 | `whatif` | `unit_id`, `as_of`, `lever` | `current_value`, `proposed_value`, `safe_low`, `safe_high`, `unit_of_measure`, `restores_target`, `note`, `run_id` | `as_of` in (start, end] |
+| `series_summarised` | `key_id` | (series first written with ten rows per hour or more) | never |
+| `series_hourly` | `key_id`, `hour` | `t_first`, `lo`, `hi`, `total`, `n` of the hour's non-NULL values | hours meeting [start, end) of the summarised series, recomputed from the rows |
 | `watermarks` | `unit_id` | `last_ts`, `run_id` | moves forward only |
 | `store_meta` | `key` | `value` | never |
 

@@ -9,7 +9,7 @@ from pathlib import Path
 from typing import Iterator
 
 import pandas as pd
-from sqlalchemy import Engine, create_engine, event, insert, select, text, update
+from sqlalchemy import Engine, create_engine, event, func, insert, select, text, update
 from sqlalchemy.exc import ArgumentError, DatabaseError
 from sqlalchemy.engine import make_url
 from sqlalchemy.exc import NoSuchModuleError
@@ -174,6 +174,26 @@ def _upgrade_from_2(conn) -> None:
     for name, kind in (("rate", "DOUBLE PRECISION"), ("last_check", stamp)):
         if name not in have:
             conn.execute(text(f"ALTER TABLE alarms ADD COLUMN {name} {kind}"))
+    conn.execute(update(store_meta).where(store_meta.c.key == "schema_version").values(value="3"))
+
+
+def _upgrade_from_3(conn) -> None:
+    """Version 3 -> 4: the series stored with ten rows per hour or more (:func:`kinetrace.store.rollup.is_fine`)
+    are listed in ``series_summarised`` and their hourly summary ``series_hourly`` is filled from
+    their rows (both tables created empty by ``create_all``), as the writer keeps it from now on."""
+    from .bulk import ts_as_epoch_us
+    from .rollup import is_fine, mark_summarised, refresh_hours
+    from .schema import series_values
+
+    ts = ts_as_epoch_us(conn)
+    spans = conn.execute(select(series_values.c.key_id, func.min(ts), func.max(ts), func.count())
+                         .group_by(series_values.c.key_id)).all()
+    fine = [(k, int(a), int(b)) for k, a, b, n in spans if is_fine(int(a), int(b), int(n))]
+    if fine:
+        mark_summarised(conn, [k for k, _, _ in fine])
+        lo, hi = min(a for _, a, _ in fine), max(b for _, _, b in fine)
+        refresh_hours(conn, [k for k, _, _ in fine], pd.Timestamp(lo, unit="us", tz="UTC"),
+                      pd.Timestamp(hi + 1, unit="us", tz="UTC"))
     conn.execute(update(store_meta).where(store_meta.c.key == "schema_version").values(value=str(SCHEMA_VERSION)))
 
 
@@ -208,13 +228,17 @@ class Store:
                     have = "2"
                 if have == "2":
                     _upgrade_from_2(conn)
+                    have = "3"
+                if have == "3":
+                    _upgrade_from_3(conn)
             _upgrade_run_states(conn)
 
     def check_version(self) -> None:
         """Refuse a store written with another table layout."""
         with self.engine.connect() as conn:
             have = conn.execute(select(store_meta.c.value).where(store_meta.c.key == "schema_version")).scalar()
-        if have is not None and have != str(SCHEMA_VERSION):
+        # version 3 lacks only the hourly summary, which readers do without (opened to write, it is upgraded)
+        if have is not None and have not in (str(SCHEMA_VERSION), "3"):
             raise StoreError(f"store {self!r} has schema version {have}; this kinetrace reads version "
                              f"{SCHEMA_VERSION}")
 

@@ -46,6 +46,10 @@ class StagedSeries:
         SQLite database image with table ``staged (ts INTEGER, value REAL)``: variable k holds the
         rowids ``k * times + 1`` to ``(k + 1) * times``, time stamps in microseconds since the Unix
         epoch, NaN as NULL. [us], [unit of each variable]
+    hours : dict or None
+        :func:`kinetrace.store.rollup.hour_table` of the rows (``var`` the variable's position) when
+        they are ten or more per hour (:func:`kinetrace.store.rollup.is_fine`), for the store's
+        hourly summary; else None.
     """
 
     variables: tuple
@@ -54,6 +58,7 @@ class StagedSeries:
     last: pd.Timestamp | None = None
     times: int = 0
     image: bytes = b""
+    hours: dict | None = None
 
 
 def series_arrays(what: str, frame, units: dict | None) -> tuple[dict, dict]:
@@ -131,13 +136,19 @@ def stage_series(frame: pd.DataFrame, units: dict | None = None, *, unit: str = 
     >>> staged_arrays(s)[2].tolist()
     [0.8, nan]
     """
+    from .rollup import hour_table, is_fine
+
     values, units = series_arrays(f"series of unit {unit}" if unit else "staged series", frame, units)
     n = len(frame)
     variables = tuple(frame.columns)
     rows = np.empty(n * len(variables), dtype=[("ts", "<i8"), ("value", "<f8")])
+    hours = None
     if len(rows):
-        rows["ts"] = np.tile(epoch_us(frame.index), len(variables))
+        stamps = epoch_us(frame.index)
+        rows["ts"] = np.tile(stamps, len(variables))
         rows["value"] = np.concatenate([values[c] for c in variables])
+        if is_fine(stamps.min(), stamps.max(), n):
+            hours = hour_table(np.repeat(np.arange(len(variables)), n), rows["ts"], rows["value"])
     con = sqlite3.connect(":memory:")
     try:
         con.execute("CREATE TABLE staged (ts INTEGER NOT NULL, value REAL)")
@@ -149,7 +160,7 @@ def stage_series(frame: pd.DataFrame, units: dict | None = None, *, unit: str = 
         con.close()
     first = frame.index.min().tz_convert("UTC") if n else None
     last = frame.index.max().tz_convert("UTC") if n else None
-    return StagedSeries(variables, units, first, last, n, bytes(image))
+    return StagedSeries(variables, units, first, last, n, bytes(image), hours)
 
 
 def staged_arrays(staged: StagedSeries) -> tuple[np.ndarray, np.ndarray, np.ndarray]:

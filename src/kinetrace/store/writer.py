@@ -14,6 +14,7 @@ import pandas as pd
 from sqlalchemy import Connection, and_, delete, insert, select, update
 
 from .bulk import insert_series
+from .rollup import hour_table, is_fine, keep_hours, mark_summarised, summarised
 from .staging import StagedSeries, insert_staged, series_arrays
 from .records import (
     ALARM_COLUMNS,
@@ -127,21 +128,36 @@ class RunWriter:
         if first is not None:
             self._in_window(first, what)
             self._in_window(last, what)
-        key_ids = self._series_keys(unit, variables, units)
+        key_ids, new_keys = self._series_keys(unit, variables, units)
         cond = and_(series_values.c.ts >= self.window[0], series_values.c.ts < self.window[1])
         if self._first_time("series", unit):
-            unit_keys = select(series_keys.c.key_id).where(series_keys.c.unit_id == unit)
-            self._conn.execute(delete(series_values).where(series_values.c.key_id.in_(unit_keys), cond))
+            changed = list(self._conn.execute(select(series_keys.c.key_id)
+                                              .where(series_keys.c.unit_id == unit)).scalars())
         else:
-            self._conn.execute(delete(series_values).where(series_values.c.key_id.in_(key_ids), cond))
+            changed = list(key_ids)
+        self._conn.execute(delete(series_values).where(series_values.c.key_id.in_(changed), cond))
         if staged is not None:
             written = insert_staged(self._conn, staged, key_ids, self.run_id)
+            n = staged.times
         else:
             n = len(frame)
             ts_us = np.tile(epoch_us(frame.index), len(key_ids))
             keys = np.repeat(np.asarray(key_ids, dtype=np.int64), n)
             vals = np.concatenate([values[c] for c in frame.columns]) if key_ids else np.array([], float)
             written = insert_series(self._conn, keys, ts_us, vals, self.run_id)
+        # the hourly summary follows the rows (kinetrace.store.rollup): a new series is summarised
+        # when its first write has ten rows per hour or more
+        if new_keys and first is not None and is_fine(first.value // 1000, last.value // 1000, n):
+            mark_summarised(self._conn, new_keys)
+        kept = summarised(self._conn, changed)
+        if kept:
+            table = None
+            if staged is not None and staged.hours is not None:
+                table = dict(staged.hours, var=np.asarray(key_ids, dtype=np.int64)[staged.hours["var"]])
+            elif staged is None:
+                pick = np.isin(keys, kept)
+                table = hour_table(keys[pick], ts_us[pick], vals[pick])
+            keep_hours(self._conn, kept, self.window[0], self.window[1], table)
         self._count("series_values", written)
         return written
 
@@ -167,7 +183,7 @@ class RunWriter:
             rows = conn.execute(select(series_keys.c.variable, series_keys.c.key_id)
                                 .where(series_keys.c.unit_id == unit)).all()
             known = {r.variable: (r.key_id, None) for r in rows}
-        return [known[v][0] for v in variables]
+        return [known[v][0] for v in variables], [known[r["variable"]][0] for r in new]
 
     # -- daily production ----------------------------------------------------------------
     def write_daily(self, unit: str, frame: pd.DataFrame) -> int:
