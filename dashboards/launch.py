@@ -3,7 +3,8 @@
 Streamlit imports what a page uses during the first script run of the first browser session, so
 the first page of a fresh server waited for Altair, SciPy, pint and kinetrace to be imported
 (about two seconds of a four-second first load on the benchmark machine). Importing them here,
-before the server answers its health check, moves that wait to start-up. Nothing is read here:
+before the server answers its health check, moves that wait to start-up, as it does the map of
+modules to files that Streamlit's first element of a process asks for (through ``inspect.stack()``). Nothing is read here:
 the store is first read by a page, as before, and every page's query cache starts empty.
 
 Usage (what :func:`kinedash.serve.streamlit_command` and ``kinetrace dashboard`` run)::
@@ -50,6 +51,12 @@ def warm() -> list[str]:
                 failed.append(name)
     finally:
         quiet.setLevel(level)
+    # the first element a page sends makes Streamlit call inspect.stack() once per process (its check
+    # for an interactive session), which maps every imported module to its file: about 0.3 s with
+    # the modules above; done here, the page finds the map made
+    import inspect
+
+    inspect.stack()
     return failed
 
 

@@ -211,12 +211,15 @@ def bucket_stats(store: Store, key_id: int, start, end, n_buckets: int, how: str
         elif how == "ranges":
             # one index range scan per bucket: SQLite would sort a GROUP BY on an expression
             # in a temporary B-tree, about 8x slower than these scans
-            raw = conn.connection.driver_connection
-            sql = ("SELECT ?, min(ts), min(value), max(value), sum(value), count(value) FROM series_values "
-                   "WHERE key_id = ? AND ts >= ? AND ts < ? AND value IS NOT NULL")
             nb = (e_us - origin + width - 1) // width
-            rows = [raw.execute(sql, (i, key_id, max(origin + i * width, s_us),
-                                      min(origin + (i + 1) * width, e_us))).fetchone() for i in range(nb)]
+            edges = [(max(origin + i * width, s_us), min(origin + (i + 1) * width, e_us)) for i in range(nb)]
+            if conn.dialect.name == "sqlite":
+                raw = conn.connection.driver_connection
+                sql = ("SELECT ?, min(ts), min(value), max(value), sum(value), count(value) FROM series_values "
+                       "WHERE key_id = ? AND ts >= ? AND ts < ? AND value IS NOT NULL")
+                rows = [raw.execute(sql, (i, key_id, lo, hi)).fetchone() for i, (lo, hi) in enumerate(edges)]
+            else:                          # the same scans through SQLAlchemy (other back ends' parameters)
+                rows = [(i, *_raw_stats(conn, key_id, lo, hi)) for i, (lo, hi) in enumerate(edges)]
             rows = [r for r in rows if r[5]]
         else:
             ts = ts_as_epoch_us(conn)

@@ -64,7 +64,7 @@ def test_hour_buckets_equal_buckets_of_the_rows(filled, start, end, n):
     # the default picks the hourly summary for buckets of 2 h and more, with the same result
     pd.testing.assert_frame_equal(bucket_stats(filled, key, start, end, n), got)
     # a series without the summary is read from its rows into the same buckets (a chart's series align)
-    for how in ("ranges", "group_by") if filled.dialect == "sqlite" else ("group_by",):
+    for how in ("ranges", "group_by"):
         rows = bucket_stats(filled, key, start, end, n, how=how)
         assert rows.index.equals(got.index) and rows["count"].tolist() == got["count"].tolist()
         np.testing.assert_array_equal(rows["lo"].to_numpy(), got["lo"].to_numpy())
