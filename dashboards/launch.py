@@ -23,12 +23,13 @@ for _p in (HERE, HERE.parent / "src"):
     if str(_p) not in sys.path:
         sys.path.insert(0, str(_p))
 
-#: Modules the pages import (their own imports follow).
+#: Modules the pages import (their own imports follow), and kinetrace.pipeline.feed, which the what-if
+#: page's kinedash.setting imports inside a function (0.23 s on its first use).
 WARM = ("numpy", "pandas", "altair", "PIL.ImageDraw", "scipy.stats", "kinetrace.units", "kinetrace.errors",
         "kinetrace.report.names", "kinetrace.report.verdict", "kinetrace.monitor.whatif", "kinedash.cached",
         "kinedash.ui", "kinedash.display", "kinedash.setting_cache", "kinedash.source", "kinedash.trends",
         "kinedash.morning", "kinedash.setting", "kinedash.labels", "kinedash.figures", "kinedash.evidence",
-        "kinedash.charts", "kinedash.arrhenius")
+        "kinedash.charts", "kinedash.arrhenius", "kinetrace.pipeline.feed")
 
 
 def warm() -> list[str]:
