@@ -7,10 +7,12 @@ reactor k of the fleet is a copy of one of them under its own id, reading the sa
 The same backfill runs on an embedded LocalCluster of one worker process and then of two, in
 this run, each with a fresh store and chunk cache; printed: wall time of each, the speed-up,
 the peak resident memory of each worker process (``VmHWM``, read on the worker at the end),
-and reactor-years per minute. Also the single-unit year: the whole check of one unit in this
-process against ingest alone (``read_unit``) of the same data. Prints; asserts nothing.
+and reactor-years per minute (with ``--pairs N``, N pairs of runs in alternating order and the
+medians: the speed-up is a ratio of two runs minutes apart, and a shared machine's speed drifts).
+Also the single-unit year: the whole check of one unit in this process against ingest alone
+(``read_unit``) of the same data. Prints; asserts nothing.
 
-Usage: ``python benchmarks/bench_fleet.py [--units 50] [--years 1] [--chunk 30D] [--data DIR]``
+Usage: ``python benchmarks/bench_fleet.py [--units 50] [--years 1] [--chunk 30D] [--pairs 1] [--data DIR]``
 (small while developing: ``--units 4 --years 1``, or ``--units 2 --years 0.25``).
 """
 
@@ -19,6 +21,7 @@ from __future__ import annotations
 import argparse
 import os
 import resource
+import statistics
 import sys
 import tempfile
 import time
@@ -92,7 +95,10 @@ def _peak_mb() -> float:
     return resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0
 
 
-def backfill(cfg: Path, since, until, workers: int, work: Path, chunk: str) -> tuple[float, list[float], object]:
+def backfill(cfg: Path, since, until, workers: int, work: Path, chunk: str, run: int = 0) -> tuple[float, list[float], object]:
+    """One backfill on a fresh LocalCluster of ``workers``, into a store and chunk cache of its own
+    (named by ``workers`` and ``run``, so that no run resumes another's work): (wall [s], peak
+    memory of each worker [MB], outcome)."""
     from kinetrace.fleet import run_backfill
     from kinetrace.fleet.cluster import open_client
 
@@ -100,7 +106,8 @@ def backfill(cfg: Path, since, until, workers: int, work: Path, chunk: str) -> t
         client.wait_for_workers(workers)
         t = time.perf_counter()
         out = run_backfill(cfg, since=since, until=until, chunk=chunk, client=client,
-                           store=f"sqlite:///{work / f'store-{workers}.sqlite'}", cache_dir=work / f"cache-{workers}",
+                           store=f"sqlite:///{work / f'store-{workers}-{run}.sqlite'}",
+                           cache_dir=work / f"cache-{workers}-{run}",
                            progress_stream=sys.stderr, progress_every=10.0)
         wall = time.perf_counter() - t
         peaks = sorted(client.run(_peak_mb).values())
@@ -136,6 +143,9 @@ def main() -> None:
     ap.add_argument("--units", type=int, default=50, help="reactors in the fleet")
     ap.add_argument("--years", type=float, default=1.0, help="years of 1-minute history per reactor")
     ap.add_argument("--chunk", default="30D", help="chunk length (pandas span)")
+    ap.add_argument("--pairs", type=int, default=1,
+                    help="pairs of 1- and 2-worker runs, in alternating order; the last line gives the medians "
+                         "(the speed-up is a ratio of two runs minutes apart: on a shared machine take 3)")
     ap.add_argument("--data", type=Path, default=ROOT / "benchmarks" / "results" / "fleet",
                     help="where the simulated historian is kept between runs (generated once, reused)")
     args = ap.parse_args()
@@ -152,19 +162,26 @@ def main() -> None:
         print(f"single unit, {days} days of 1-minute data from SQLite: check {check_s:.2f} s (CPU {cpu_s:.2f} s), "
               f"ingest alone {ingest_s:.2f} s, after ingest {check_s - ingest_s:.2f} s (ratio check/ingest "
               f"{check_s / ingest_s:.2f}); load average {os.getloadavg()[0]:.1f} on {os.cpu_count()} cores")
-        rows = {}
-        for workers in (1, 2):
-            wall, peaks, out = backfill(cfg, since, until, workers, work, args.chunk)
-            rows[workers] = (wall, peaks)
-            state = "ok" if out.ok else f"{len(out.failed)} unit(s) failed: {out.failed}"
-            print(f"{workers} worker(s): {wall:.1f} s, {out.chunks_run} chunks, "
-                  f"{args.units * days / 365 / (wall / 60):.2f} reactor-years per minute, "
-                  f"peak per worker {', '.join(f'{p:.0f}' for p in peaks)} MB; {state}")
+        walls, peaks_all, pair_speedups = {1: [], 2: []}, [], []
+        for k in range(max(1, args.pairs)):
+            order = (1, 2) if k % 2 == 0 else (2, 1)     # alternate, so a drifting machine favours neither
+            got = {}
+            for workers in order:
+                wall, peaks, out = backfill(cfg, since, until, workers, work, args.chunk, run=k)
+                got[workers] = wall
+                walls[workers].append(wall)
+                peaks_all.extend(peaks)
+                state = "ok" if out.ok else f"{len(out.failed)} unit(s) failed: {out.failed}"
+                print(f"{workers} worker(s): {wall:.1f} s, {out.chunks_run} chunks, "
+                      f"{args.units * days / 365 / (wall / 60):.2f} reactor-years per minute, "
+                      f"peak per worker {', '.join(f'{p:.0f}' for p in peaks)} MB; {state}", flush=True)
+            pair_speedups.append(got[1] / got[2])
     ry = args.units * days / 365
-    w1, w2 = rows[1][0], rows[2][0]
-    peak = max(rows[1][1] + rows[2][1])
+    w1, w2 = statistics.median(walls[1]), statistics.median(walls[2])
+    if len(pair_speedups) > 1:
+        print(f"speed-up of each pair: {', '.join(f'{x:.2f}' for x in pair_speedups)}; medians below")
     print(f"fleet: {ry:g} reactor-years, 1 worker {w1:.1f} s, 2 workers {w2:.1f} s, speed-up {w1 / w2:.2f}, "
-          f"peak {peak:.0f} MB per worker")
+          f"peak {max(peaks_all):.0f} MB per worker")
 
 
 if __name__ == "__main__":
